@@ -1,0 +1,78 @@
+"""File-system helpers every layer may use: atomic writes, write-if-changed, confined paths, hashes."""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import tempfile
+from pathlib import Path
+
+from .errors import UnsafePathError
+
+
+def atomic_write_bytes(path: str | os.PathLike, data: bytes) -> None:
+    """Write ``data`` to ``path`` so readers see the old file or the new one, never half of it.
+
+    The bytes go to a temporary file in the same folder, are flushed to disk, then renamed over
+    the target (rename is atomic on POSIX within one file system). If writing fails (disk full),
+    the temporary file is removed and the old file is untouched.
+    """
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise
+
+
+def atomic_write_text(path: str | os.PathLike, text: str) -> None:
+    atomic_write_bytes(path, text.encode("utf-8"))
+
+
+def write_if_changed(path: str | os.PathLike, data: bytes) -> bool:
+    """Write ``data`` only when the file's bytes differ; return True when it was written.
+
+    Keeping unchanged files untouched keeps their timestamps, so the workflow engine does not
+    rerun steps whose inputs did not really change.
+    """
+    path = Path(path)
+    try:
+        if path.stat().st_size == len(data) and path.read_bytes() == data:
+            return False
+    except FileNotFoundError:
+        pass
+    atomic_write_bytes(path, data)
+    return True
+
+
+def confined(root: str | os.PathLike, relative: str | os.PathLike, what: str = "path") -> Path:
+    """Resolve ``relative`` inside ``root`` and refuse anything that leaves it (``..``, absolute, links)."""
+    root_path = Path(root).resolve()
+    rel = Path(relative)
+    if rel.is_absolute():
+        raise UnsafePathError(f"{what} {str(relative)!r} is absolute; it must stay inside {root_path}")
+    target = (root_path / rel).resolve()
+    if target != root_path and root_path not in target.parents:
+        raise UnsafePathError(f"{what} {str(relative)!r} leaves {root_path}")
+    return target
+
+
+def sha256_file(path: str | os.PathLike, chunk: int = 1 << 20) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        while block := fh.read(chunk):
+            h.update(block)
+    return h.hexdigest()
+
+
+def sha256_bytes(data: bytes) -> str:
+    return hashlib.sha256(data).hexdigest()
