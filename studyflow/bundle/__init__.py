@@ -1,0 +1,12 @@
+"""The reviewer bundle: pack a study with a manifest and its environment; audit a bundle.
+
+``pack`` writes one tar.gz archive; ``audit`` unpacks one safely (or takes an unpacked folder),
+checks every hash, re-renders every case, re-runs a chosen subset and re-computes the
+uncertainty table, and ends with a verdict.
+"""
+
+from .manifest import Manifest, VerifyResult, verify_tree
+from .pack import PackResult, pack
+from .unpack import safe_extract
+
+__all__ = ["Manifest", "PackResult", "VerifyResult", "pack", "safe_extract", "verify_tree"]

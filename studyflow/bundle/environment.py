@@ -1,0 +1,136 @@
+"""The environment a study was run and packed in: Python, packages, platform, solver versions.
+
+Solver versions are asked of the program itself (``<command> --version``, no shell, short
+timeout); a program that does not answer is recorded as such rather than guessed.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import importlib.metadata as md
+import os
+import platform
+import re
+import shutil
+import subprocess
+import sys
+import tempfile
+from dataclasses import dataclass
+from typing import Any
+
+import studyflow
+
+# the packages whose versions most affect numbers or case rendering; all others are kept too
+KEY_PACKAGES = ("studyflow", "numpy", "scipy", "pandas", "pyarrow", "jinja2", "pydantic", "pyyaml",
+                "snakemake", "meshio", "h5py")
+
+_VERSION_RE = re.compile(r"\d+(?:\.\d+)+(?:[-+.]?[0-9A-Za-z]+)*")
+
+
+def now_utc() -> str:
+    """Pack time as ISO 8601 UTC; ``SOURCE_DATE_EPOCH`` (a common reproducible-builds convention)
+    fixes it so two packs of the same study give the same bytes."""
+    epoch = os.environ.get("SOURCE_DATE_EPOCH")
+    if epoch and epoch.isdigit():
+        moment = _dt.datetime.fromtimestamp(int(epoch), tz=_dt.timezone.utc)
+    else:
+        moment = _dt.datetime.now(tz=_dt.timezone.utc).replace(microsecond=0)
+    return moment.isoformat().replace("+00:00", "Z")
+
+
+def packages() -> dict[str, str]:
+    """Installed distributions by normalised name (importlib.metadata)."""
+    found: dict[str, str] = {}
+    for dist in md.distributions():
+        name = dist.metadata.get("Name")
+        if name:
+            found[re.sub(r"[-_.]+", "-", name).lower()] = dist.version
+    return dict(sorted(found.items()))
+
+
+@dataclass(frozen=True)
+class SolverVersion:
+    command: str
+    resolved: str | None  # full path found on PATH, or None
+    output: str | None  # first non-empty line the program printed
+    version: str | None  # the first version-like token in that line
+    error: str | None
+
+    def to_json(self) -> dict[str, Any]:
+        return dict(self.__dict__)
+
+    @property
+    def label(self) -> str:
+        return self.version or self.output or f"unknown ({self.error})"
+
+
+def probe_solver(command: str, cwd: str | None = None, timeout: float = 5.0) -> SolverVersion:
+    """Run ``command --version`` (argument list, no shell) and keep the first line it prints."""
+    resolved = shutil.which(command, path=os.environ.get("PATH")) if "/" not in command else (
+        os.path.join(cwd, command) if cwd and not os.path.isabs(command) else command)
+    if resolved is None or not os.path.exists(resolved):
+        return SolverVersion(command, None, None, None, "not found")
+    try:
+        # run in an empty scratch folder: a program that ignores --version and starts work
+        # must not write into the study
+        with tempfile.TemporaryDirectory(prefix="studyflow-probe-") as scratch:
+            proc = subprocess.run([resolved, "--version"], capture_output=True, timeout=timeout,
+                                  stdin=subprocess.DEVNULL, cwd=scratch, check=False)
+    except subprocess.TimeoutExpired:
+        return SolverVersion(command, resolved, None, None, f"no answer to --version within {timeout:g} s")
+    except OSError as exc:
+        return SolverVersion(command, resolved, None, None, f"could not start: {exc.strerror or exc}")
+    text = (proc.stdout or b"").decode("utf-8", "replace") + "\n" + (proc.stderr or b"").decode("utf-8", "replace")
+    line = next((ln.strip() for ln in text.splitlines() if ln.strip()), None)
+    if proc.returncode != 0:
+        return SolverVersion(command, resolved, line, None, f"--version exited with code {proc.returncode}")
+    match = _VERSION_RE.search(line or "")
+    return SolverVersion(command, resolved, line, match.group(0) if match else None, None)
+
+
+def capture(solver_commands: list[str], command_lines: list[Any] | None = None,
+            run_dates: dict[str, str] | None = None) -> dict[str, Any]:
+    """The environment record stored as ``environment.json`` in a bundle."""
+    pkgs = packages()
+    return {
+        "studyflow_version": studyflow.__version__,
+        "packed": now_utc(),
+        "pack_command": list(sys.argv),
+        "python": {
+            "version": platform.python_version(),
+            "implementation": platform.python_implementation(),
+            "executable": sys.executable,
+        },
+        "platform": {
+            "system": platform.system(),
+            "release": platform.release(),
+            "machine": platform.machine(),
+            "platform": platform.platform(),
+        },
+        "key_packages": {k: pkgs.get(k) for k in KEY_PACKAGES},
+        "packages": pkgs,
+        "solvers": {c: probe_solver(c).to_json() for c in sorted(set(solver_commands))},
+        "command_lines": command_lines or [],
+        "run_dates": run_dates or {},
+    }
+
+
+def compare(shipped: dict[str, Any], solvers_now: dict[str, SolverVersion]) -> list[dict[str, Any]]:
+    """Differences between the packed environment and this one that may change numbers."""
+    notes: list[dict[str, Any]] = []
+    for command, now in sorted(solvers_now.items()):
+        then = (shipped.get("solvers") or {}).get(command) or {}
+        before = then.get("version") or then.get("output")
+        after = now.version or now.output
+        if before != after:
+            notes.append({"what": "solver version", "name": command, "packed": before, "now": after,
+                          "error_now": now.error})
+    py_then = (shipped.get("python") or {}).get("version")
+    if py_then and py_then != platform.python_version():
+        notes.append({"what": "python version", "name": "python", "packed": py_then,
+                      "now": platform.python_version()})
+    pkgs_now = packages()
+    for name, then in sorted((shipped.get("key_packages") or {}).items()):
+        if pkgs_now.get(name) != then:
+            notes.append({"what": "package version", "name": name, "packed": then, "now": pkgs_now.get(name)})
+    return notes

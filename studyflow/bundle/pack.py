@@ -1,0 +1,246 @@
+"""Pack a study into one reviewer bundle: a gzip-compressed tar archive.
+
+The archive holds one top folder ``<study>-bundle/`` with ``MANIFEST.json`` first, then
+``environment.json`` and the payload (see ``layout``) in sorted order. Members carry fixed
+owner, group and modes and one timestamp, and the gzip header no file name, so the same study
+packed twice with ``SOURCE_DATE_EPOCH`` set gives the same bytes.
+"""
+
+from __future__ import annotations
+
+import calendar
+import gzip
+import hashlib
+import io
+import json
+import os
+import shlex
+import tarfile
+import tempfile
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, BinaryIO
+
+import studyflow
+
+from ..errors import StudyflowError
+from ..fsutil import sha256_bytes
+from . import environment as env
+from .layout import PAYLOAD, Member, StudyLayout, locate, select
+from .manifest import ENVIRONMENT_NAME, MANIFEST_NAME, FileEntry, Manifest
+
+
+class PackError(StudyflowError):
+    """The study could not be packed (a file changed while packing, the target is not writable)."""
+
+
+@dataclass
+class PackResult:
+    archive: Path
+    manifest_sha256: str
+    files: int
+    bytes: int
+    skipped: list[dict[str, str]] = field(default_factory=list)
+    solvers: dict[str, Any] = field(default_factory=dict)
+
+    def to_json(self) -> dict[str, Any]:
+        return {"archive": str(self.archive), "manifest_sha256": self.manifest_sha256, "files": self.files,
+                "bytes": self.bytes, "skipped": self.skipped, "solvers": self.solvers}
+
+
+def _hash_file(path: Path) -> tuple[str, int]:
+    h = hashlib.sha256()
+    size = 0
+    with open(path, "rb") as fh:
+        while block := fh.read(1 << 20):
+            h.update(block)
+            size += len(block)
+    return h.hexdigest(), size
+
+
+def _solver_commands(layout: StudyLayout) -> list[str]:
+    """The program each step starts: from the rendered step records when there are any, else
+    from the study file's ``run`` with constants filled in."""
+    found: set[str] = set()
+    for rec in sorted(layout.study_dir.glob("cases/*/.studyflow/*.step.json")):
+        try:
+            argv = json.loads(rec.read_text(encoding="utf-8")).get("argv")
+        except (OSError, ValueError, AttributeError):
+            continue
+        if isinstance(argv, list) and argv and isinstance(argv[0], str):
+            found.add(argv[0])
+    if found:
+        return sorted(found)
+    constants = layout.raw.get("constants") or {}
+    for step in layout.raw.get("steps") or []:
+        run = step.get("run") if isinstance(step, dict) else None
+        first = (shlex.split(run) if isinstance(run, str) else run or [None])[0]
+        if not isinstance(first, str):
+            continue
+        if "{{" in first:
+            try:
+                import jinja2
+
+                first = jinja2.Environment(undefined=jinja2.StrictUndefined).from_string(first).render(**constants)
+            except Exception:  # a name only the full case context defines: leave the command unprobed
+                continue
+        found.add(first)
+    return sorted(found)
+
+
+def _run_history(layout: StudyLayout) -> tuple[list[Any], dict[str, str]]:
+    """Command lines from the study's run log and the span of case run dates."""
+    commands: list[Any] = []
+    state = layout.study_dir / ".studyflow"
+    for log in sorted(state.glob("*")) if state.is_dir() else []:
+        if not log.is_file() or not ("log" in log.name or log.suffix == ".jsonl"):
+            continue
+        try:
+            lines = log.read_text(encoding="utf-8", errors="replace").splitlines()
+        except OSError:
+            continue
+        for line in lines[-500:]:
+            line = line.strip()
+            if not line:
+                continue
+            try:
+                obj = json.loads(line)
+            except ValueError:
+                obj = None
+            if isinstance(obj, dict):
+                cmd = obj.get("argv") or obj.get("command") or obj.get("cmd")
+                if cmd:
+                    commands.append({"at": obj.get("time") or obj.get("started") or obj.get("at"), "command": cmd})
+            elif "studyflow" in line:
+                commands.append({"at": None, "command": line})
+    starts, ends = [], []
+    for rec in layout.study_dir.glob("cases/*/.studyflow/*.status.json"):
+        try:
+            data = json.loads(rec.read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            continue
+        if isinstance(data, dict):
+            if isinstance(data.get("started"), str):
+                starts.append(data["started"])
+            if isinstance(data.get("ended"), str):
+                ends.append(data["ended"])
+    dates = {}
+    if starts:
+        dates["first_step_started"] = min(starts)
+    if ends:
+        dates["last_step_ended"] = max(ends)
+    return commands, dates
+
+
+def _epoch(created: str) -> int:
+    return calendar.timegm(time.strptime(created, "%Y-%m-%dT%H:%M:%SZ"))
+
+
+def _info(name: str, size: int, mtime: int, executable: bool = False) -> tarfile.TarInfo:
+    ti = tarfile.TarInfo(name)
+    ti.size = size
+    ti.mtime = mtime
+    ti.mode = 0o755 if executable else 0o644
+    ti.uid = ti.gid = 0
+    ti.uname = ti.gname = ""
+    ti.type = tarfile.REGTYPE
+    return ti
+
+
+class _CheckedReader(io.RawIOBase):
+    """Reads a file into the archive while hashing it, so a file that changed since it was
+    listed in the manifest is caught."""
+
+    def __init__(self, fh: BinaryIO):
+        self.fh = fh
+        self.h = hashlib.sha256()
+
+    def readable(self) -> bool:
+        return True
+
+    def readinto(self, b) -> int:  # type: ignore[override]
+        data = self.fh.read(len(b))
+        self.h.update(data)
+        b[: len(data)] = data
+        return len(data)
+
+
+def default_archive_name(layout: StudyLayout) -> str:
+    return f"{layout.study_dir.name}-bundle.tar.gz"
+
+
+def pack(study: str | os.PathLike, archive: str | os.PathLike | None = None, *, fields: bool = True,
+         compresslevel: int = 6) -> PackResult:
+    """Pack the study (its file or folder) into ``archive`` and return what was written.
+
+    The archive appears only when complete (written to a temporary file, then renamed).
+    """
+    layout = locate(study)
+    members, skipped = select(layout, fields=fields)
+    out = Path(archive) if archive is not None else layout.study_dir.parent / default_archive_name(layout)
+    out = out.resolve()
+    entries: list[FileEntry] = []
+    for m in members:
+        if m.source.resolve() == out:
+            continue
+        digest, size = _hash_file(m.source)
+        entries.append(FileEntry(m.path, digest, size, m.role))
+    members = [m for m in members if m.source.resolve() != out]
+
+    commands, dates = _run_history(layout)
+    environment = env.capture(_solver_commands(layout), commands, dates)
+    env_bytes = (json.dumps(environment, indent=1, sort_keys=True) + "\n").encode("utf-8")
+    entries.append(FileEntry(ENVIRONMENT_NAME, sha256_bytes(env_bytes), len(env_bytes), "environment"))
+
+    template = None
+    if layout.template_dir is not None:
+        template = {"declared": layout.template_declared, "stored": f"{PAYLOAD}/{layout.template_rel()}",
+                    "inside_study": layout.template_inside_study,
+                    "absolute": os.path.isabs(str(layout.template_declared))}
+    manifest = Manifest(
+        study_name=layout.study_dir.name,
+        study_dir=f"{PAYLOAD}/{layout.study_rel}".rstrip("/."),
+        study_file=f"{PAYLOAD}/{layout.study_rel}/{layout.study_file.name}".replace("/./", "/"),
+        template=template,
+        created=environment["packed"],
+        studyflow_version=studyflow.__version__,
+        options={"fields": fields},
+        files=entries,
+        skipped=skipped,
+    )
+    manifest_bytes = manifest.dumps()
+    mtime = _epoch(manifest.created)
+    top = layout.study_dir.name + "-bundle"
+
+    out.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(dir=out.parent, prefix=f".{out.name}.", suffix=".tmp")
+    total = 0
+    try:
+        with os.fdopen(fd, "wb") as raw:
+            with gzip.GzipFile(filename="", mode="wb", fileobj=raw, mtime=mtime, compresslevel=compresslevel) as gz, \
+                    tarfile.open(fileobj=gz, mode="w", format=tarfile.PAX_FORMAT) as tf:
+                for name, data in ((MANIFEST_NAME, manifest_bytes), (ENVIRONMENT_NAME, env_bytes)):
+                    tf.addfile(_info(f"{top}/{name}", len(data), mtime), io.BytesIO(data))
+                by_path = manifest.by_path()
+                for m in members:
+                    entry = by_path[m.path]
+                    with open(m.source, "rb") as fh:
+                        reader = _CheckedReader(fh)
+                        executable = os.access(m.source, os.X_OK)
+                        tf.addfile(_info(f"{top}/{m.path}", entry.size, mtime, executable), reader)
+                        if reader.h.hexdigest() != entry.sha256:
+                            raise PackError(f"{m.source}: changed while packing; pack again when no run is active")
+                    total += entry.size
+            raw.flush()
+            os.fsync(raw.fileno())
+        os.chmod(tmp, 0o644)
+        os.replace(tmp, out)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise
+    return PackResult(out, sha256_bytes(manifest_bytes), len(entries), total, skipped,
+                      environment["solvers"])
