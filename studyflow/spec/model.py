@@ -215,6 +215,7 @@ class Study(_Strict):
     cluster: ClusterSpec | None = None
     analysis: AnalysisSpec | None = None
     report: dict[str, Any] | None = Field(None, description="report settings, checked by studyflow.report")
+    audit: dict[str, Any] | None = Field(None, description="reviewer-audit tolerances, checked by studyflow.bundle")
 
     _file: Path | None = PrivateAttr(None)
 
