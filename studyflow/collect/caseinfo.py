@@ -1,0 +1,234 @@
+"""What collection needs to know about a study and its case folders, in one place.
+
+This is the only module that knows the layout written by the layers below (DEVELOPERS.md, "Case
+folders"): ``cases/<id>/.studyflow/case.json`` from rendering, ``<step>.done`` markers and
+``<step>.status.json`` from the workflow, and the attributes of ``studyflow.spec.Study`` and of the
+design's case table. If one of those changes, this is the file to adjust.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Iterable, Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Literal
+
+from ..errors import CollectError, Problem
+from ..fsutil import confined
+
+STATE_DIR = ".studyflow"
+CaseStatus = Literal["done", "failed", "pending"]
+
+
+@dataclass(frozen=True)
+class StudyInfo:
+    name: str
+    root: Path
+    file: str
+    steps: tuple[str, ...]
+    quantities: Mapping[str, Any]
+    iteration: Any = None
+    mesh: Any = None
+
+    @property
+    def cases_dir(self) -> Path:
+        return self.root / "cases"
+
+    @property
+    def results_dir(self) -> Path:
+        return self.root / "results"
+
+
+def study_info(study: Any) -> StudyInfo:
+    """Read what collection needs from a loaded ``Study`` (or anything with the same attributes)."""
+    if isinstance(study, StudyInfo):
+        return study
+    root = Path(study.root)
+    try:
+        file = str(study.file)
+    except AttributeError:
+        file = str(root / "study.yaml")
+    steps = tuple(study.step_names()) if hasattr(study, "step_names") else tuple(s.name for s in study.steps)
+    name = getattr(study, "name", None) or root.name
+    return StudyInfo(name, root, file, steps, dict(study.quantities or {}),
+                     getattr(study, "iteration", None), getattr(study, "mesh", None))
+
+
+@dataclass(frozen=True)
+class CaseInfo:
+    """One case of the design: its id, point, mesh level, parameter values, sizes and h."""
+
+    case: str
+    point: str = ""
+    level: int | None = None
+    params: Mapping[str, Any] = field(default_factory=dict)
+    sizes: Mapping[str, Any] = field(default_factory=dict)
+    h: float | None = None
+    cells: float | None = None
+
+
+def _num(value: Any) -> float | None:
+    if value is None or isinstance(value, bool):
+        return None
+    try:
+        out = float(value)
+    except (TypeError, ValueError):
+        return None
+    return out if math.isfinite(out) else None
+
+
+def _cells_from_sizes(sizes: Mapping[str, Any], mesh: Any) -> float | None:
+    # Sizes that are cell counts per direction multiply to the cell count; spacings do not.
+    counts = getattr(mesh, "counts", None) if mesh is not None else None
+    if not counts:
+        return None
+    values = [_num(sizes.get(k)) for k in counts]
+    if any(v is None for v in values):
+        return None
+    return float(math.prod(values))  # type: ignore[arg-type]
+
+
+def case_from_mapping(data: Mapping[str, Any], mesh: Any = None, fallback_id: str = "") -> CaseInfo:
+    """A ``CaseInfo`` from case.json or a design row (tolerant of either's key names)."""
+    case = str(data.get("case") or data.get("case_id") or data.get("id") or fallback_id)
+    mesh_block = data.get("mesh") if isinstance(data.get("mesh"), Mapping) else {}
+    sizes = data.get("sizes") or mesh_block.get("sizes") or {}
+    if not sizes and mesh_block:
+        sizes = {k: v for k, v in mesh_block.items() if k not in ("level", "levels", "h", "ratio", "cells", "sizes")}
+    level = data.get("level", mesh_block.get("level"))
+    h = _num(data.get("h", mesh_block.get("h")))
+    cells = _num(data.get("cells", mesh_block.get("cells")))
+    if cells is None:
+        cells = _cells_from_sizes(sizes, mesh)
+    params = data.get("params", data.get("parameters")) or {}
+    point = str(data.get("point") or data.get("point_id") or "")
+    return CaseInfo(case, point, None if level is None else int(level), dict(params), dict(sizes), h, cells)
+
+
+def case_dir(info: StudyInfo, case: str) -> Path:
+    """The case's folder, refused if the id would leave ``cases/``."""
+    return confined(info.cases_dir, case, what="case id")
+
+
+def read_case_json(info: StudyInfo, case: str) -> CaseInfo | None:
+    path = case_dir(info, case) / STATE_DIR / "case.json"
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        return None
+    except (ValueError, UnicodeDecodeError) as exc:
+        raise CollectError(Problem(str(path), "", None, f"not valid JSON: {exc}")) from None
+    return case_from_mapping(data, info.mesh, fallback_id=case)
+
+
+def design_cases(info: StudyInfo, study: Any = None) -> list[CaseInfo]:
+    """Every case of the study: the design's case table when it can be built, else the rendered
+    case folders (those with a case.json). Design cases not rendered yet are included (pending)."""
+    rows: list[CaseInfo] = []
+    if study is not None and not isinstance(study, StudyInfo):
+        table = _design_table(study)
+        if table is not None:
+            rows = [case_from_mapping(r, info.mesh) for r in table]
+    if rows:
+        return rows
+    found = []
+    if info.cases_dir.is_dir():
+        for entry in sorted(info.cases_dir.iterdir()):
+            if (entry / STATE_DIR / "case.json").is_file():
+                c = read_case_json(info, entry.name)
+                if c is not None:
+                    found.append(c)
+    return found
+
+
+def _design_table(study: Any) -> list[Mapping[str, Any]] | None:
+    """The case table of ``studyflow.design`` as a list of mappings, or None if it is not available."""
+    try:
+        from .. import design  # noqa: PLC0415 - the design layer may be absent in a partial install
+    except ImportError:
+        return None
+    build = getattr(design, "case_table", None) or getattr(design, "design_cases", None)
+    if build is None:
+        return None
+    table = build(study)
+    if hasattr(table, "to_dict"):  # a DataFrame
+        return table.to_dict(orient="records")
+    out = []
+    for row in table:
+        if isinstance(row, Mapping):
+            out.append(row)
+        elif hasattr(row, "model_dump"):
+            out.append(row.model_dump())
+        elif hasattr(row, "__dataclass_fields__"):
+            out.append({k: getattr(row, k) for k in row.__dataclass_fields__})
+        else:
+            out.append(vars(row))
+    return out
+
+
+@dataclass(frozen=True)
+class CaseState:
+    """Where a case stands in the workflow: every step done and ok, a step failed, or neither yet."""
+
+    status: CaseStatus
+    reason: str = ""
+    wall_time: float | None = None
+    stamps: tuple[tuple[str, int, int], ...] = ()  # (file, size, mtime_ns) of the markers read
+
+
+def _stamp(path: Path) -> tuple[str, int, int] | None:
+    try:
+        st = path.stat()
+    except FileNotFoundError:
+        return None
+    return (path.name, st.st_size, st.st_mtime_ns)
+
+
+def case_state(folder: Path, steps: Iterable[str]) -> CaseState:
+    """Judge a case from its ``<step>.done`` markers and ``<step>.status.json`` files.
+
+    Done only when every step has its marker and an ``ok`` status, so the outputs of an interrupted
+    or half-finished case are never read; failed when any step's status says so (with its reason).
+    """
+    steps = tuple(steps)
+    state = folder / STATE_DIR
+    wall = 0.0
+    have_wall = False
+    stamps: list[tuple[str, int, int]] = []
+    missing: list[str] = []
+    for step in steps:
+        status_path = state / f"{step}.status.json"
+        done_path = state / f"{step}.done"
+        try:
+            status = json.loads(status_path.read_text(encoding="utf-8"))
+        except FileNotFoundError:
+            status = None
+        except (ValueError, UnicodeDecodeError):
+            # A status file is written atomically, so a broken one means outside interference.
+            return CaseState("failed", f"step {step}: {status_path.name} is not valid JSON")
+        if status is not None:
+            t = _num(status.get("wall_time", status.get("wall_s", status.get("elapsed"))))
+            if t is not None:
+                wall += t
+                have_wall = True
+            if str(status.get("status", "")).lower() not in ("ok", "done", "success"):
+                reason = status.get("reason") or f"status {status.get('status')!r}"
+                code = status.get("exit_code", status.get("returncode"))
+                if code not in (None, 0) and "exit code" not in str(reason):
+                    reason = f"{reason} (exit code {code})"
+                return CaseState("failed", f"step {step}: {reason}", wall if have_wall else None)
+            stamp = _stamp(status_path)
+            if stamp:
+                stamps.append(stamp)
+        done = _stamp(done_path)
+        if status is None or done is None:
+            missing.append(step)
+        else:
+            stamps.append(done)
+    if missing:
+        first = missing[0]
+        reason = "not run yet" if len(missing) == len(steps) else f"step {first} not finished"
+        return CaseState("pending", reason, wall if have_wall else None)
+    return CaseState("done", "", wall if have_wall else None, tuple(stamps))
