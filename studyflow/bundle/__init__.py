@@ -7,6 +7,8 @@ uncertainty table, and ends with a verdict.
 
 from .manifest import Manifest, VerifyResult, verify_tree
 from .pack import PackResult, pack
+from .review import AuditReport, RerunChoice, audit
 from .unpack import safe_extract
 
-__all__ = ["Manifest", "PackResult", "VerifyResult", "pack", "safe_extract", "verify_tree"]
+__all__ = ["AuditReport", "Manifest", "PackResult", "RerunChoice", "VerifyResult", "audit", "pack",
+           "safe_extract", "verify_tree"]

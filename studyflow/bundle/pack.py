@@ -28,6 +28,7 @@ from ..errors import StudyflowError
 from ..fsutil import sha256_bytes
 from . import environment as env
 from .layout import PAYLOAD, Member, StudyLayout, locate, select
+from .tolerances import settings_from
 from .manifest import ENVIRONMENT_NAME, MANIFEST_NAME, FileEntry, Manifest
 
 
@@ -176,7 +177,12 @@ def pack(study: str | os.PathLike, archive: str | os.PathLike | None = None, *, 
 
     The archive appears only when complete (written to a temporary file, then renamed).
     """
+    from ..spec import load_study
+
     layout = locate(study)
+    # a bundle is only worth sending if its study file loads and its audit block is valid
+    load_study(layout.study_file)
+    settings_from(layout.raw.get("audit"), str(layout.study_file))
     members, skipped = select(layout, fields=fields)
     out = Path(archive) if archive is not None else layout.study_dir.parent / default_archive_name(layout)
     out = out.resolve()

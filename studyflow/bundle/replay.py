@@ -1,0 +1,234 @@
+"""Re-making a bundle's study from its own study file and templates: re-render, re-run, re-assess.
+
+Nothing here writes into the bundle. Re-rendering happens in memory; re-running works on a
+scratch copy of the study file, its templates and any other study input (never the shipped
+case folders, whose outputs are what the re-run is compared with).
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import re
+import shutil
+from dataclasses import dataclass, field
+from pathlib import Path, PurePosixPath
+from typing import Any
+
+import yaml
+
+from ..errors import AuditError, StudyflowError
+from .manifest import Manifest
+from .tolerances import AuditSettings, settings_from
+
+# study sub-folders that hold outputs, never inputs of a re-run
+OUTPUT_DIRS = ("cases", "results", "report", ".studyflow", ".snakemake")
+STATE = ".studyflow"
+
+
+def _study_paths(root: Path, manifest: Manifest) -> tuple[Path, Path]:
+    study_dir = root / manifest.study_dir
+    study_file = root / manifest.study_file
+    if not study_file.is_file():
+        raise AuditError(f"{manifest.study_file}: the bundle's study file is missing")
+    return study_dir, study_file
+
+
+def audit_settings(study_file: Path) -> AuditSettings:
+    """The study's ``audit:`` tolerances (defaults when the block is absent)."""
+    try:
+        raw = yaml.safe_load(study_file.read_text(encoding="utf-8")) or {}
+    except (OSError, yaml.YAMLError):
+        raw = {}
+    return settings_from(raw.get("audit") if isinstance(raw, dict) else None, str(study_file))
+
+
+def copy_inputs(root: Path, manifest: Manifest, scratch: Path) -> Path:
+    """Copy the study file, templates and other study inputs to ``scratch`` in the bundle's
+    layout; return the scratch study file. A template given as an absolute path is pointed at
+    its stored copy in the scratch study file (the only edit ever made to a study file)."""
+    if scratch.exists() and any(scratch.iterdir()):
+        raise AuditError(f"scratch folder {scratch} is not empty")
+    study_dir, study_file = _study_paths(root, manifest)
+    payload_root = root / "payload"
+    for src in sorted(payload_root.rglob("*")):
+        if src.is_symlink() or not src.is_file():
+            continue
+        rel = src.relative_to(root)
+        try:
+            inner = src.relative_to(study_dir)
+            if inner.parts and inner.parts[0] in OUTPUT_DIRS:
+                continue
+        except ValueError:
+            pass
+        dst = scratch / rel
+        dst.parent.mkdir(parents=True, exist_ok=True)
+        shutil.copy2(src, dst)
+    new_file = scratch / manifest.study_file
+    tpl = manifest.template or {}
+    if tpl.get("absolute"):
+        stored = (scratch / tpl["stored"]).resolve()
+        text = new_file.read_text(encoding="utf-8")
+        text, n = re.subn(r"(?m)^template\s*:.*$", "template: " + json.dumps(str(stored)), text, count=1)
+        if n != 1:
+            raise AuditError(f"{manifest.study_file}: cannot point the study at its stored template")
+        new_file.write_text(text, encoding="utf-8")
+    return new_file
+
+
+@dataclass
+class RerenderOutcome:
+    cases: int = 0
+    files: int = 0
+    case_ids: list[str] = field(default_factory=list)
+    differs: list[str] = field(default_factory=list)
+    not_shipped: list[str] = field(default_factory=list)
+    extra_cases: list[str] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+    settings: AuditSettings | None = None
+
+    @property
+    def ok(self) -> bool:
+        return not (self.differs or self.not_shipped or self.extra_cases)
+
+    def to_json(self) -> dict[str, Any]:
+        return {"cases": self.cases, "files": self.files, "differs": self.differs,
+                "not_shipped": self.not_shipped, "extra_cases": self.extra_cases, "notes": self.notes}
+
+
+def _load(study_file: Path):
+    from ..spec import load_study
+
+    return load_study(study_file)
+
+
+def _step_json_equal_but_limit(a: bytes, b: bytes) -> bool:
+    """True when two step records differ only in the time limit (a ``run --timeout`` override)."""
+    try:
+        ja, jb = json.loads(a), json.loads(b)
+    except ValueError:
+        return False
+    if not (isinstance(ja, dict) and isinstance(jb, dict)):
+        return False
+    ja.pop("time_limit_s", None)
+    jb.pop("time_limit_s", None)
+    return ja == jb
+
+
+def rerender(root: Path, manifest: Manifest, scratch: Path) -> RerenderOutcome:
+    """Render every case of the bundle's study in memory and compare each file with the shipped one."""
+    from ..design import build_design
+    from ..render import render_all
+
+    study_dir, study_file = _study_paths(root, manifest)
+    if (manifest.template or {}).get("absolute"):
+        study_file = copy_inputs(root, manifest, scratch)
+    out = RerenderOutcome(settings=audit_settings(study_file))
+    study = _load(study_file)
+    design = build_design(study)
+    rendered = render_all(study, design)
+    cases_prefix = PurePosixPath(manifest.study_dir) / "cases"
+    for rc in rendered:
+        cid = rc.case.id
+        out.case_ids.append(cid)
+        expected: dict[str, bytes] = dict(rc.files)
+        expected[f"{STATE}/case.json"] = rc.case_json
+        for doc, data in zip(rc.steps, rc.step_bytes()):
+            expected[f"{STATE}/{doc['step']}.step.json"] = data
+        for rel, data in sorted(expected.items()):
+            out.files += 1
+            bundle_path = (cases_prefix / cid / rel).as_posix()
+            shipped = root / bundle_path
+            if not shipped.is_file() or shipped.is_symlink():
+                out.not_shipped.append(bundle_path)
+                continue
+            have = shipped.read_bytes()
+            if have != data:
+                if rel.endswith(".step.json") and _step_json_equal_but_limit(have, data):
+                    out.notes.append(f"{bundle_path}: time limit differs (the study was run with a limit override)")
+                    continue
+                out.differs.append(bundle_path)
+    out.cases = len(rendered)
+    designed = set(out.case_ids)
+    shipped_cases = root / cases_prefix
+    if shipped_cases.is_dir():
+        out.extra_cases = sorted(p.name for p in shipped_cases.iterdir()
+                                 if p.is_dir() and p.name not in designed and (p / STATE / "case.json").is_file())
+    return out
+
+
+@dataclass
+class UncertaintyOutcome:
+    ran: bool = False
+    ok: bool = True
+    summary: str = ""
+    table: str | None = None
+    comparison: dict[str, Any] | None = None
+
+    def to_json(self) -> dict[str, Any]:
+        return {"summary": self.summary, "table": self.table, "comparison": self.comparison}
+
+
+UNCERTAINTY_KEYS = ["point", "quantity", "coord"]
+
+
+def _read_table(folder: Path, stem: str):
+    """A shipped table of the study's results folder, Parquet preferred (exact dtypes), else CSV."""
+    import pandas as pd
+
+    pq, csv = folder / f"{stem}.parquet", folder / f"{stem}.csv"
+    if pq.is_file():
+        return pd.read_parquet(pq), pq
+    if csv.is_file():
+        return pd.read_csv(csv, dtype={"point": "str", "case": "str", "quantity": "str"},
+                           keep_default_na=True), csv
+    return None, None
+
+
+def recompute_uncertainty(root: Path, manifest: Manifest, scratch: Path,
+                          settings: AuditSettings | None) -> UncertaintyOutcome:
+    """Re-assess the shipped results table and compare with the shipped uncertainty table."""
+    from .compare import compare_tables
+
+    study_dir, study_file = _study_paths(root, manifest)
+    results_dir = study_dir / "results"
+    shipped, shipped_path = _read_table(results_dir, "uncertainty")
+    if shipped is None:
+        return UncertaintyOutcome(False, True, "no uncertainty table in the bundle")
+    try:
+        from ..analysis import assess  # type: ignore[attr-defined]
+    except ImportError as exc:
+        raise AuditError("this studyflow has no analysis to re-compute the uncertainty table with") from exc
+    from ..collect import read_results
+
+    if (manifest.template or {}).get("absolute") and (scratch / manifest.study_file).is_file():
+        study_file = scratch / manifest.study_file
+    study = _load(study_file)
+    settings = settings or audit_settings(study_file)
+    tables = read_results(study_dir)
+    remade = assess(tables.results, study=study, histories=tables.histories)
+    rtol, atol = settings.for_uncertainty()
+    cmp = compare_tables(shipped, remade, UNCERTAINTY_KEYS, lambda row: (rtol, atol))
+    rel = shipped_path.relative_to(root).as_posix()
+    if cmp.ok:
+        summary = f"re-computed from the shipped results: {cmp.rows_shipped} rows match ({rel})"
+    else:
+        summary = f"{len(cmp.differences)} differences against {rel} (first: {cmp.differences[0]})"
+    return UncertaintyOutcome(True, cmp.ok, summary, rel, cmp.to_json())
+
+
+@dataclass
+class RerunOutcome:
+    cases: list[str] = field(default_factory=list)
+    checks: list[Any] = field(default_factory=list)  # compare.QuantityCheck
+    failed_cases: dict[str, str] = field(default_factory=dict)
+    notes: list[dict[str, Any]] = field(default_factory=list)
+    scratch: str = ""
+
+    @property
+    def ok(self) -> bool:
+        return not self.failed_cases and all(c.ok for c in self.checks)
+
+    def to_json(self) -> dict[str, Any]:
+        return {"cases": self.cases, "failed_cases": self.failed_cases, "scratch": self.scratch,
+                "checks": [c.to_json() for c in self.checks]}
