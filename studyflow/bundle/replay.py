@@ -232,3 +232,80 @@ class RerunOutcome:
     def to_json(self) -> dict[str, Any]:
         return {"cases": self.cases, "failed_cases": self.failed_cases, "scratch": self.scratch,
                 "checks": [c.to_json() for c in self.checks]}
+
+
+def _run_case(case_dir: Path, steps: list[str], timeout_s: float | None) -> str | None:
+    """Run a case's steps in order with the workflow's own step runner, each in a fresh Python
+    process exactly as a workflow job would; return the failure reason or None."""
+    import subprocess
+    import sys
+
+    from ..workflow import signature as sig
+
+    for step in steps:
+        try:
+            proc = subprocess.run([sys.executable, "-m", "studyflow.workflow.runstep", str(case_dir), step],
+                                  capture_output=True, timeout=timeout_s, stdin=subprocess.DEVNULL, check=False)
+        except subprocess.TimeoutExpired:
+            return f"step {step}: no end within {timeout_s:g} s"
+        if proc.returncode != 0:
+            status = sig.read_json(sig.status_path(str(case_dir), step)) or {}
+            why = status.get("reason") or proc.stderr.decode("utf-8", "replace").strip()[-300:]
+            return f"step {step}: {why or f'exit code {proc.returncode}'}"
+    return None
+
+
+def rerun(root: Path, manifest: Manifest, scratch: Path, cases: list[str], settings: AuditSettings | None,
+          jobs: int = 1, timeout_s: float | None = None) -> RerunOutcome:
+    """Re-run ``cases`` from a fresh render in ``scratch`` and compare every collected quantity
+    with the shipped results table, within the study's audit tolerances."""
+    from concurrent.futures import ThreadPoolExecutor
+
+    from ..collect import collect_study
+    from ..design import build_design
+    from ..render import render_study
+    from .compare import compare_histories, compare_results
+
+    study_dir, _ = _study_paths(root, manifest)
+    shipped_results, shipped_path = _read_table(study_dir / "results", "results")
+    if shipped_results is None:
+        raise AuditError(f"{manifest.study_dir}/results: the bundle has no results table to compare a re-run with")
+    shipped_hist, _ = _read_table(study_dir / "results", "histories")
+
+    study_file = copy_inputs(root, manifest, scratch)
+    settings = settings or audit_settings(study_file)
+    study = _load(study_file)
+    design = build_design(study)
+    render_study(study, design)
+    out = RerunOutcome(cases=list(cases), scratch=str(scratch))
+    steps = study.step_names()
+    with ThreadPoolExecutor(max_workers=max(1, jobs)) as pool:
+        reasons = dict(zip(cases, pool.map(lambda c: _run_case(study.cases_dir / c, steps, timeout_s), cases)))
+
+    # programs shipped with the study (a path, not a name on PATH) are asked for their version here
+    shipped_env = {}
+    try:
+        shipped_env = json.loads((root / "environment.json").read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        pass
+    from . import environment as env
+
+    for command, then in sorted((shipped_env.get("solvers") or {}).items()):
+        if "/" in command and cases:
+            now = env.probe_solver(command, cwd=str(study.cases_dir / cases[0]))
+            before, after = (then or {}).get("version") or (then or {}).get("output"), now.version or now.output
+            if before != after:
+                out.notes.append({"what": "solver version", "name": command, "packed": before, "now": after,
+                                  "error_now": now.error})
+
+    tables = collect_study(study, cases=cases, write=False)
+    remade = tables.results
+    for c in cases:
+        shipped_status = set(shipped_results.loc[shipped_results["case"].astype(str) == c, "status"].astype(str))
+        if reasons[c] is not None and shipped_status != {"failed"}:
+            out.failed_cases[c] = reasons[c]
+    out.checks = compare_results(shipped_results, remade, cases, settings)
+    if shipped_hist is not None and not shipped_hist.empty:
+        out.checks += compare_histories(shipped_hist, tables.histories, cases, settings)
+    out.checks.sort(key=lambda c: (c.case, c.quantity, c.kind))
+    return out

@@ -43,6 +43,7 @@ def register(subparsers: Any) -> None:
     which.add_argument("--rerun-case", nargs="+", metavar="ID", help="re-run these cases")
     a.add_argument("--seed", type=int, default=0, help="seed of --rerun-sample (default 0)")
     a.add_argument("--scratch", help="folder for re-rendering and re-running (default: temporary, removed after)")
+    a.add_argument("--jobs", type=int, default=1, metavar="N", help="cases re-run at the same time (default 1)")
     a.add_argument("--keep-scratch", action="store_true", help="keep the temporary scratch folder")
     a.add_argument("--json", action="store_true", help="print the full report as JSON")
     a.set_defaults(handler=run_audit)
@@ -70,7 +71,7 @@ def _choice(args: argparse.Namespace) -> RerunChoice:
 
 def run_audit(args: argparse.Namespace) -> int:
     report = audit(args.source, into=args.into, rerun=_choice(args), scratch=args.scratch,
-                          keep_scratch=args.keep_scratch)
+                          keep_scratch=args.keep_scratch, jobs=max(1, args.jobs))
     if args.json:
         json.dump(report.to_json(), sys.stdout, indent=1, default=str)
         sys.stdout.write("\n")

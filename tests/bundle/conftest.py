@@ -20,7 +20,7 @@ if [ "$1" = "--version" ]; then echo "toysolve {version} (demo build)"; exit 0; 
 n=$(awk -F' = ' '$1=="n"{{print $2}}' "$1")
 k=$(awk -F' = ' '$1=="k"{{print $2}}' "$1")
 awk -v n="$n" -v k="$k" 'BEGIN {{
-  h = 1.0 / n; phi = k * (1 + 0.5 * h * h)
+  h = 1.0 / n; phi = k * (1 + 0.5 * h * h) * {scale}
   printf "{{\\"drag\\": {{\\"cd\\": %.17g}}}}\\n", phi > "metrics.json"
   print "iteration,res" > "history.csv"
   for (i = 0; i < 5; i++) printf "%d,%.17g\\n", i, 10 ^ (-i) > "history.csv"
@@ -67,10 +67,11 @@ class Toy:
         return self.study_dir / "study.yaml"
 
 
-def write_solver(bin_dir: Path, version: str) -> Path:
+def write_solver(bin_dir: Path, version: str, scale: str = "1") -> Path:
+    """The toy solver; ``scale`` multiplies its answer (a stand-in for a release that changed numbers)."""
     bin_dir.mkdir(parents=True, exist_ok=True)
     path = bin_dir / "toysolve"
-    path.write_text(SOLVER.format(version=version))
+    path.write_text(SOLVER.format(version=version, scale=scale))
     path.chmod(path.stat().st_mode | stat.S_IXUSR | stat.S_IXGRP | stat.S_IXOTH)
     return path
 
@@ -90,3 +91,51 @@ def toy(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> Toy:
     t = make_toy(tmp_path / "work")
     monkeypatch.setenv("PATH", f"{t.bin_dir}{os.pathsep}{os.environ.get('PATH', '')}")
     return t
+
+
+def run_toy(toy: Toy) -> None:
+    """Render, run and collect the toy study with the project's own render, step runner and
+    collection (the functions every workflow job calls)."""
+    import subprocess
+    import sys
+
+    from studyflow.collect import collect_study, write_tables
+    from studyflow.design import build_design
+    from studyflow.render import render_study
+    from studyflow.spec import load_study
+
+    study = load_study(toy.study_file)
+    design = build_design(study)
+    render_study(study, design)
+    for case in design.cases:
+        for step in study.step_names():
+            subprocess.run([sys.executable, "-m", "studyflow.workflow.runstep", str(study.cases_dir / case.id), step],
+                           check=True)
+    write_tables(study.root, collect_study(study))
+
+
+@dataclass
+class Packed:
+    toy: Toy
+    archive: Path
+
+
+@pytest.fixture(scope="session")
+def packed_toy(tmp_path_factory: pytest.TempPathFactory) -> Packed:
+    """The toy study run once and packed; tests unpack their own copy of the archive."""
+    base = tmp_path_factory.mktemp("packed")
+    t = make_toy(base / "work")
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setenv("PATH", f"{t.bin_dir}{os.pathsep}{os.environ.get('PATH', '')}")
+        mp.setenv("SOURCE_DATE_EPOCH", "1767225600")
+        run_toy(t)
+        from studyflow.bundle import pack
+
+        archive = pack(t.study_dir, base / "toy-bundle.tar.gz").archive
+    return Packed(t, archive)
+
+
+def use_solver(mp: pytest.MonkeyPatch, folder: Path, version: str, scale: str = "1") -> None:
+    """Put a toy solver of this version first on PATH (the reviewer's machine)."""
+    write_solver(folder, version, scale)
+    mp.setenv("PATH", f"{folder}{os.pathsep}{os.environ.get('PATH', '')}")
