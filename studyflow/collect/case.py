@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import hashlib
 import json
-import math
 import stat
 from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
@@ -22,8 +21,8 @@ import numpy as np
 from ..errors import UnsafePathError
 from ..fsutil import confined, write_if_changed
 from .caseinfo import STATE_DIR, CaseInfo, StudyInfo, case_dir, case_state, read_case_json, study_info
-from .check import Bound, check_quantities, mesh_dim
-from .sizes import representative_size
+from ..design import h_from_cells, mesh_dim
+from .check import Bound, check_quantities
 from .values import QuantityResult, ReadFailure, Reading
 
 RECORD_FILE = "record.json"
@@ -253,8 +252,10 @@ def collect_one(info: StudyInfo, bound: Mapping[str, Bound], case: CaseInfo, *, 
         q = results.get(cq)
         if q is not None and q.status == "ok" and q.reading is not None:
             cells = q.reading.final
-            h_arr = representative_size(info.mesh.measure, cells, mesh_dim(info.mesh) or 1)
-            h = float(h_arr) if math.isfinite(float(h_arr)) else None
+            try:
+                h = h_from_cells(cells, float(info.mesh.measure), mesh_dim(info.mesh) or 1)
+            except ValueError:
+                h = None
             if h is None:
                 results[cq] = replace(q, status="failed", reason=f"{q.files[0] if q.files else ''}: "
                                       f"{q.reading.where}: a cell count must be positive (got {cells!r})")

@@ -124,15 +124,13 @@ def read_case_json(info: StudyInfo, case: str) -> CaseInfo | None:
 
 
 def design_cases(info: StudyInfo, study: Any = None) -> list[CaseInfo]:
-    """Every case of the study: the design's case table when it can be built, else the rendered
-    case folders (those with a case.json). Design cases not rendered yet are included (pending)."""
-    rows: list[CaseInfo] = []
-    if study is not None and not isinstance(study, StudyInfo):
-        table = _design_table(study)
-        if table is not None:
-            rows = [case_from_mapping(r, info.mesh) for r in table]
-    if rows:
-        return rows
+    """Every case of the study: the design's case table when ``study`` is a loaded ``Study`` (so
+    cases not rendered yet are included, as pending), else the rendered case folders."""
+    if study is not None and not isinstance(study, StudyInfo) and hasattr(study, "parameters"):
+        from ..design import build_design  # noqa: PLC0415 - only needed with a full Study
+
+        return [CaseInfo(c.id, c.point.id, c.level, dict(c.params), dict(c.mesh.sizes),
+                         _num(c.mesh.h), _num(c.mesh.cells)) for c in build_design(study).cases]
     found = []
     if info.cases_dir.is_dir():
         for entry in sorted(info.cases_dir.iterdir()):
@@ -141,31 +139,6 @@ def design_cases(info: StudyInfo, study: Any = None) -> list[CaseInfo]:
                 if c is not None:
                     found.append(c)
     return found
-
-
-def _design_table(study: Any) -> list[Mapping[str, Any]] | None:
-    """The case table of ``studyflow.design`` as a list of mappings, or None if it is not available."""
-    try:
-        from .. import design  # noqa: PLC0415 - the design layer may be absent in a partial install
-    except ImportError:
-        return None
-    build = getattr(design, "case_table", None) or getattr(design, "design_cases", None)
-    if build is None:
-        return None
-    table = build(study)
-    if hasattr(table, "to_dict"):  # a DataFrame
-        return table.to_dict(orient="records")
-    out = []
-    for row in table:
-        if isinstance(row, Mapping):
-            out.append(row)
-        elif hasattr(row, "model_dump"):
-            out.append(row.model_dump())
-        elif hasattr(row, "__dataclass_fields__"):
-            out.append({k: getattr(row, k) for k in row.__dataclass_fields__})
-        else:
-            out.append(vars(row))
-    return out
 
 
 @dataclass(frozen=True)

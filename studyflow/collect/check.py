@@ -12,6 +12,7 @@ from typing import Any
 
 from pydantic import BaseModel, ValidationError
 
+from ..design import mesh_dim as design_mesh_dim
 from ..errors import CollectError, Problem
 from ..spec.quantities import QUANTITY_NAME, QuantitySpec
 from . import registry
@@ -82,24 +83,6 @@ def bind(quantities: Mapping[str, QuantitySpec], file: str = "study.yaml") -> tu
     return bound, problems
 
 
-def mesh_dim(mesh: Any) -> int | None:
-    """The number of space dimensions of the mesh family: ``dim``, else counted from its sizes."""
-    if mesh is None:
-        return None
-    dim = getattr(mesh, "dim", None)
-    if dim:
-        return int(dim)
-    for attr in ("extent", "counts", "spacings"):
-        val = getattr(mesh, attr, None)
-        if val:
-            return len(val)
-    levels = getattr(mesh, "list_", None)
-    if levels:
-        sizes = [k for k in levels[0] if k not in ("h", "cells", "id")]
-        return len(sizes) or None
-    return None
-
-
 def cross_problems(quantities: Mapping[str, QuantitySpec], iteration: Any, mesh: Any,
                    parameters: list[str] | tuple[str, ...] = (), file: str = "study.yaml") -> list[Problem]:
     """Problems that tie the quantities to the ``iteration:`` and ``mesh:`` blocks and the parameters."""
@@ -108,9 +91,8 @@ def cross_problems(quantities: Mapping[str, QuantitySpec], iteration: Any, mesh:
         for i, res in enumerate(getattr(iteration, "residuals", []) or []):
             if res not in quantities:
                 problems.append(Problem(file, f"iteration.residuals[{i}]", res, "is not a quantity of this study"))
-        flag = getattr(iteration, "flag", None)
-        if flag is not None and flag not in quantities:
-            problems.append(Problem(file, "iteration.flag", flag, "is not a quantity of this study"))
+        # ``flag`` may name a quantity that is not declared: then it is never present, and the
+        # residuals decide (the spec layer allows this too).
         tol = getattr(iteration, "tolerance", None)
         if getattr(iteration, "residuals", None) and tol is None:
             problems.append(Problem(file, "iteration.tolerance", None, "residuals are listed, so a tolerance is needed"))
@@ -128,7 +110,7 @@ def cross_problems(quantities: Mapping[str, QuantitySpec], iteration: Any, mesh:
         if getattr(mesh, "measure", None) is None:
             problems.append(Problem(file, "mesh.measure", None, "cells_from needs the domain's measure "
                                                                 "(its length, area or volume)"))
-        if mesh_dim(mesh) is None:
+        if design_mesh_dim(mesh) is None:
             problems.append(Problem(file, "mesh.dim", None, "cells_from needs the number of dimensions "
                                                             "(mesh.dim, or extent/counts/spacings to count them)"))
     for p in parameters:
