@@ -1,0 +1,185 @@
+"""Everything the report reads from a study folder, gathered once into one ``StudyData``.
+
+The report never computes study results: it reads the tidy tables the collection and analysis layers
+wrote (``results/``) and the state files of the case folders, so it can be rebuilt at any time, also
+while cases are still running.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+from ..errors import InputError, Problem
+from .settings import ReportSettings, load_settings
+
+# Columns of the tidy results table that are not parameters (DEVELOPERS.md, "Tidy tables").
+RESULT_FIXED = [
+    "study", "case", "point", "level", "cells", "h", "quantity", "kind", "coord", "value", "unit",
+    "status", "converged", "reason",
+]
+UNCERTAINTY_FIXED = [
+    "point", "quantity", "coord", "levels", "h_fine", "value_fine", "order", "extrapolated", "e_a",
+    "e_ext", "gci_fine", "gci_medium", "asymptotic_ratio", "convergence", "R", "method", "U", "u_num",
+    "iterative_error", "iterative_ok", "verdict", "reason",
+]
+
+
+@dataclass
+class CaseState:
+    """What the case folder says about one case, independent of any collected table."""
+
+    case: str
+    point: str | None = None
+    level: int | None = None
+    params: dict[str, Any] = field(default_factory=dict)
+    h: float | None = None
+    status: str = "pending"  # done | failed | pending
+    reason: str = ""
+    wall_time: float | None = None
+    started: str | None = None
+    ended: str | None = None
+    folder: Path | None = None
+
+
+@dataclass
+class StudyData:
+    root: Path
+    settings: ReportSettings
+    results: pd.DataFrame | None
+    histories: pd.DataFrame | None
+    cases_table: pd.DataFrame | None
+    uncertainty: pd.DataFrame | None
+    cases: dict[str, CaseState]
+    table_files: dict[str, Path]
+
+    @property
+    def parameters(self) -> list[str]:
+        """Parameter columns, in the order the results table has them."""
+        if self.results is not None:
+            return [c for c in self.results.columns if c not in RESULT_FIXED]
+        names: list[str] = []
+        for c in self.cases.values():
+            names += [k for k in c.params if k not in names]
+        return names
+
+
+def read_table(folder: Path, stem: str) -> tuple[pd.DataFrame | None, Path | None]:
+    """Read ``<folder>/<stem>.parquet`` (preferred) or ``.csv``; (None, None) when neither exists.
+
+    A table that exists but cannot be read is an input error naming the file: a half-written or
+    foreign file must not silently become an empty report section.
+    """
+    for suffix, reader in ((".parquet", pd.read_parquet), (".csv", pd.read_csv)):
+        path = folder / f"{stem}{suffix}"
+        if path.is_file():
+            try:
+                return reader(path), path
+            except Exception as exc:  # pyarrow and the csv parser raise many unrelated types
+                raise InputError(Problem(str(path), "", path.name, f"cannot be read as a table: {exc}")) from exc
+    return None, None
+
+
+def _read_json(path: Path) -> dict[str, Any]:
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return {}
+    return data if isinstance(data, dict) else {}
+
+
+def scan_cases(root: Path, steps: list[str]) -> dict[str, CaseState]:
+    """State of every rendered case from its ``.studyflow`` folder.
+
+    A case is failed when any step's status file says so, done when every declared step has an ``ok``
+    status (or, with no declared steps, when it has at least one status and none failed), else pending.
+    """
+    out: dict[str, CaseState] = {}
+    cases_dir = root / "cases"
+    if not cases_dir.is_dir():
+        return out
+    for meta in sorted(cases_dir.glob("*/.studyflow/case.json")):
+        folder = meta.parent.parent
+        info = _read_json(meta)
+        mesh = info.get("mesh") if isinstance(info.get("mesh"), dict) else {}
+        state = CaseState(
+            case=str(info.get("case", folder.name)),
+            point=info.get("point"),
+            level=_as_int(info.get("level", mesh.get("level"))),
+            params=dict(info.get("params") or {}),
+            h=_as_float(info.get("h", mesh.get("h"))),
+            folder=folder,
+        )
+        statuses = {p.name.removesuffix(".status.json"): _read_json(p)
+                    for p in sorted(meta.parent.glob("*.status.json"))}
+        failed = [(s, d) for s, d in statuses.items() if str(d.get("status", "")).lower() == "failed"]
+        wanted = steps or list(statuses)
+        ok = [s for s in wanted if str(statuses.get(s, {}).get("status", "")).lower() == "ok"]
+        if failed:
+            state.status = "failed"
+            step, detail = failed[0]
+            state.reason = f"{step}: {detail.get('reason') or 'failed'}"
+        elif wanted and len(ok) == len(wanted):
+            state.status = "done"
+        walls = [_as_float(d.get("wall_time", d.get("wall_time_s"))) for d in statuses.values()]
+        walls = [w for w in walls if w is not None]
+        state.wall_time = sum(walls) if walls else None
+        starts = sorted(str(d["started"]) for d in statuses.values() if d.get("started"))
+        ends = sorted(str(d["ended"]) for d in statuses.values() if d.get("ended"))
+        state.started = starts[0] if starts else None
+        state.ended = ends[-1] if ends else None
+        out[state.case] = state
+    return out
+
+
+def _as_int(value: Any) -> int | None:
+    try:
+        return int(value)
+    except (TypeError, ValueError):
+        return None
+
+
+def _as_float(value: Any) -> float | None:
+    try:
+        return float(value)
+    except (TypeError, ValueError):
+        return None
+
+
+def load(root: str | Path) -> StudyData:
+    """Gather the study's settings, tables and case states. Missing tables are ``None``, not errors."""
+    root = Path(root).resolve()
+    settings = load_settings(root)
+    res_dir = root / "results"
+    files: dict[str, Path] = {}
+    tables: dict[str, pd.DataFrame | None] = {}
+    for stem in ("results", "histories", "cases", "uncertainty"):
+        df, path = read_table(res_dir, stem)
+        tables[stem] = df
+        if path is not None:
+            files[stem] = path
+    return StudyData(
+        root=root,
+        settings=settings,
+        results=_clean(tables["results"]),
+        histories=tables["histories"],
+        cases_table=tables["cases"],
+        uncertainty=tables["uncertainty"],
+        cases=scan_cases(root, settings.steps),
+        table_files=files,
+    )
+
+
+def _clean(results: pd.DataFrame | None) -> pd.DataFrame | None:
+    if results is None:
+        return None
+    results = results.copy()
+    if "kind" not in results:
+        results["kind"] = "scalar"
+    if "status" not in results:
+        results["status"] = "done"
+    return results

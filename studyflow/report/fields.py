@@ -1,0 +1,190 @@
+"""Field pictures of the finest case and the mesh family, coarse to fine.
+
+pyvista draws the pictures in a child process (``fieldrender.py``) so a missing OpenGL library or a
+VTK crash cannot end the report; for any picture the child did not deliver, a matplotlib picture of
+the same field is drawn instead and the report says why.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+from matplotlib.collections import PolyCollection
+from matplotlib.figure import Figure
+from matplotlib.tri import Triangulation
+
+from . import style
+from .figures.common import new_figure
+from .settings import FIELD_SUFFIXES
+
+MAX_ARRAYS = 4
+MAX_DRAWN_CELLS = 60_000  # above this, the mesh drawing shows the outline only
+SURFACE_TYPES = {"triangle": 3, "quad": 4, "triangle6": 3, "quad8": 4, "quad9": 4}
+SKIP_ARRAYS = {"vtkOriginalPointIds", "vtkOriginalCellIds", "gmsh:physical", "gmsh:geometrical", "cell_tags"}
+
+
+@dataclass(frozen=True)
+class PictureJob:
+    file: Path
+    array: str
+    association: str  # point | cell
+    png: Path
+    title: str
+
+
+def find_field_file(folder: Path, declared: tuple[str, ...]) -> Path | None:
+    """The case's field file: the first declared one that exists, else the first field-like file found."""
+    for rel in declared:
+        path = folder / rel
+        if path.is_file():
+            return path
+    for pattern in ("*", "*/*"):
+        for path in sorted(folder.glob(pattern)):
+            if path.suffix.lower() in FIELD_SUFFIXES and path.is_file() and ".studyflow" not in path.parts:
+                return path
+    return None
+
+
+def read_mesh(path: Path):
+    import meshio
+
+    return meshio.read(str(path))
+
+
+def choose_arrays(mesh) -> list[tuple[str, str]]:
+    """Up to ``MAX_ARRAYS`` (name, association) pairs worth drawing; point data first."""
+    out: list[tuple[str, str]] = []
+    for name in mesh.point_data:
+        if name not in SKIP_ARRAYS:
+            out.append((name, "point"))
+    for name in mesh.cell_data:
+        if name not in SKIP_ARRAYS and name not in [n for n, _ in out]:
+            out.append((name, "cell"))
+    return out[:MAX_ARRAYS]
+
+
+def render_pictures(jobs: list[PictureJob], argv: list[str] | None = None, timeout: float = 240.0) -> dict[Path, str]:
+    """Run the child renderer on ``jobs``; returns png -> "ok" or the reason it was not drawn.
+
+    ``argv`` replaces the child command (tests use it to simulate a crashing renderer).
+    """
+    if not jobs:
+        return {}
+    with tempfile.TemporaryDirectory(prefix="studyflow-render-") as tmp:
+        job_file = Path(tmp) / "job.json"
+        job_file.write_text(json.dumps({
+            "size": [900, 520],
+            "items": [{"file": str(j.file), "array": j.array, "association": j.association,
+                       "png": str(j.png), "title": j.title} for j in jobs],
+        }), encoding="utf-8")
+        command = (argv or [sys.executable, str(Path(__file__).with_name("fieldrender.py"))]) + [str(job_file)]
+        env = dict(os.environ)
+        env.setdefault("VTK_DEFAULT_OPENGL_WINDOW", "vtkEGLRenderWindow")
+        try:
+            proc = subprocess.run(command, capture_output=True, text=True, timeout=timeout, env=env)
+        except subprocess.TimeoutExpired:
+            return {j.png: f"the off-screen renderer did not finish within {timeout:.0f} s" for j in jobs}
+        except OSError as exc:
+            return {j.png: f"the off-screen renderer could not start: {exc}" for j in jobs}
+    if proc.returncode != 0:
+        tail = (proc.stderr or "").strip().splitlines()[-1:] or [""]
+        why = f"the off-screen renderer stopped with exit code {proc.returncode}"
+        if proc.returncode < 0:
+            why = f"the off-screen renderer crashed (signal {-proc.returncode})"
+        why += f": {tail[0]}" if tail[0] else ""
+        return {j.png: why for j in jobs}
+    try:
+        reported = json.loads(proc.stdout.strip().splitlines()[-1])
+    except (ValueError, IndexError):
+        return {j.png: "the off-screen renderer gave no readable answer" for j in jobs}
+    out = {}
+    for j in jobs:
+        status = reported.get(str(j.png), "the off-screen renderer skipped this picture")
+        if status == "ok" and not (j.png.is_file() and j.png.stat().st_size > 0):
+            status = "the off-screen renderer reported success but wrote no picture"
+        out[j.png] = status
+    return out
+
+
+def _surface(mesh) -> tuple[np.ndarray, list[np.ndarray], list[tuple[str, int, int]]]:
+    """2D points and the polygon blocks of the mesh's surface cells, with (type, block index, count)."""
+    pts = np.asarray(mesh.points, dtype=float)[:, :2]
+    polys, blocks = [], []
+    for i, block in enumerate(mesh.cells):
+        n = SURFACE_TYPES.get(block.type)
+        if n:
+            polys.append(np.asarray(block.data)[:, :n])
+            blocks.append((block.type, i, len(block.data)))
+    return pts, polys, blocks
+
+
+def _values(mesh, array: str, association: str) -> np.ndarray:
+    if association == "point":
+        v = np.asarray(mesh.point_data[array], dtype=float)
+    else:
+        _, _, blocks = _surface(mesh)
+        v = np.concatenate([np.asarray(mesh.cell_data[array][i], dtype=float) for _, i, _ in blocks])
+    return np.linalg.norm(v, axis=1) if v.ndim > 1 and v.shape[1] > 1 else v.reshape(len(v))
+
+
+def fallback_picture(mesh, array: str, association: str, title: str) -> Figure:
+    """The same field drawn with matplotlib (tripcolor over the surface cells split into triangles)."""
+    fig, (ax,) = new_figure(1, ncols=1, panel_size=(6.0, 3.6))
+    pts, polys, _ = _surface(mesh)
+    ax.set_title(title, loc="left")
+    ax.set_xlabel("x")
+    ax.set_ylabel("y")
+    ax.set_aspect("equal")
+    ax.grid(False)
+    if not polys:
+        ax.text(0.5, 0.5, "no surface cells to draw", transform=ax.transAxes, ha="center")
+        return fig
+    tris, owner = [], []
+    k = 0
+    for cells in polys:
+        for j in range(1, cells.shape[1] - 1):  # fan split: a quad becomes two triangles
+            tris.append(cells[:, [0, j, j + 1]])
+            owner.append(np.arange(k, k + len(cells)))
+        k += len(cells)
+    tri = Triangulation(pts[:, 0], pts[:, 1], np.concatenate(tris))
+    values = _values(mesh, array, association)
+    if association == "point":
+        art = ax.tripcolor(tri, values, shading="gouraud", cmap="cividis")
+    else:
+        art = ax.tripcolor(tri, facecolors=values[np.concatenate(owner)], cmap="cividis")
+    fig.colorbar(art, ax=ax, label=array)
+    return fig
+
+
+def mesh_family(meshes: list[tuple[str, object]]) -> Figure:
+    """The meshes of one point, coarse to fine, side by side at the same scale."""
+    fig, axes = new_figure(len(meshes), ncols=min(3, len(meshes)), panel_size=(3.6, 2.6))
+    for ax, (title, mesh) in zip(axes, meshes):
+        pts, polys, blocks = _surface(mesh)
+        ncells = sum(n for _, _, n in blocks)
+        ax.set_title(f"{title}: {ncells} cells", loc="left")
+        ax.set_aspect("equal")
+        ax.grid(False)
+        ax.set_xlabel("x")
+        ax.set_ylabel("y")
+        if not polys:
+            ax.plot(pts[:, 0], pts[:, 1], ",", color=style.INK)
+            continue
+        if ncells > MAX_DRAWN_CELLS:
+            lo, hi = pts.min(axis=0), pts.max(axis=0)
+            ax.plot([lo[0], hi[0], hi[0], lo[0], lo[0]], [lo[1], lo[1], hi[1], hi[1], lo[1]], color=style.INK)
+            ax.text(0.5, 0.5, "too many cells to draw;\noutline only", transform=ax.transAxes, ha="center",
+                    va="center", fontsize=8, color=style.PENDING)
+            continue
+        for cells in polys:
+            ax.add_collection(PolyCollection(pts[cells], facecolors="none", edgecolors=style.LEVEL_RAMP[3],
+                                             linewidths=0.35))
+        ax.autoscale_view()
+    return fig

@@ -1,0 +1,59 @@
+"""Small helpers shared by the figure builders."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+from matplotlib.figure import Figure
+
+from .. import style
+
+
+def new_figure(panels: int, ncols: int = 3, panel_size: tuple[float, float] = (3.4, 2.6)) -> tuple[Figure, list]:
+    """A figure with ``panels`` axes on a grid; unused grid cells are removed."""
+    style.apply()
+    panels = max(1, panels)
+    ncols = max(1, min(ncols, panels))
+    nrows = math.ceil(panels / ncols)
+    # Figure() rather than pyplot.figure(): no global registry, nothing to leak across many figures.
+    fig = Figure(figsize=(panel_size[0] * ncols, panel_size[1] * nrows + 0.3), layout="constrained")
+    axes = fig.subplots(nrows, ncols, squeeze=False).ravel().tolist()
+    for ax in axes[panels:]:
+        ax.remove()
+    return fig, axes[:panels]
+
+
+def label(quantity: str, unit: str | None) -> str:
+    return f"{quantity} [{unit}]" if unit and unit != "-" else quantity
+
+
+def fmt(value: object, digits: int = 4) -> str:
+    """Numbers as the report prints them everywhere: ``digits`` significant figures, '-' when absent."""
+    try:
+        x = float(value)  # type: ignore[arg-type]
+    except (TypeError, ValueError):
+        return "-" if value is None or (isinstance(value, float) and math.isnan(value)) else str(value)
+    if math.isnan(x):
+        return "-"
+    if math.isinf(x):
+        return "inf" if x > 0 else "-inf"
+    return f"{x:.{digits}g}"
+
+
+def size_axis(rows: pd.DataFrame) -> tuple[str, np.ndarray]:
+    """The mesh-size coordinate to plot: ``h`` when known, else the cell count."""
+    h = pd.to_numeric(rows.get("h"), errors="coerce") if "h" in rows else None
+    if h is not None and h.notna().all() and (h > 0).all():
+        return "h", h.to_numpy(float)
+    cells = pd.to_numeric(rows.get("cells"), errors="coerce") if "cells" in rows else None
+    if cells is not None and cells.notna().all():
+        return "cells", cells.to_numpy(float)
+    return "level", pd.to_numeric(rows["level"], errors="coerce").to_numpy(float)
+
+
+def levels_count(results: pd.DataFrame | None) -> int:
+    if results is None or results.empty or "level" not in results:
+        return 1
+    return int(pd.to_numeric(results["level"], errors="coerce").max()) + 1

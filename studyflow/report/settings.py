@@ -1,0 +1,167 @@
+"""The few study-file settings the report needs, read straight from ``study.yaml``.
+
+The report reads the raw YAML rather than the full validated model so that it can still describe a
+study whose file was edited after the run (it reports what was run; validation belongs to ``spec``).
+The optional ``report:`` block is checked here, with errors naming file, key and value:
+
+```yaml
+report:
+  references:                  # reference curves drawn over a quantity
+    cf:                        # quantity name
+      file: data/cf_ref.csv    # CSV inside the study folder
+      x: x                     # column for the abscissa: the profile coordinate, or a swept parameter
+      y: cf                    # column for the reference value
+      label: Blasius (1908)    # optional legend text
+      point: Re1e4             # optional: draw it for this point only
+  points: 12                   # optional: at most this many points drawn per convergence figure
+```
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import yaml
+
+from ..errors import InputError, Problem
+from ..fsutil import sha256_file
+
+STUDY_FILE = "study.yaml"
+
+
+@dataclass(frozen=True)
+class Reference:
+    quantity: str
+    file: Path
+    x: str
+    y: str
+    label: str
+    point: str | None = None  # draw on this point's panels only (a reference often holds for one point)
+
+
+@dataclass(frozen=True)
+class ReportSettings:
+    study_file: Path | None
+    title: str
+    description: str = ""
+    study_hash: str | None = None
+    formal_order: float | None = None
+    safety_factor: float | None = None
+    residuals: tuple[str, ...] = ()
+    tolerance: float | None = None
+    steps: list[str] = field(default_factory=list)
+    field_files: tuple[str, ...] = ()
+    units: dict[str, str] = field(default_factory=dict)
+    solver: str | None = None
+    references: dict[str, Reference] = field(default_factory=dict)
+    max_points: int = 12
+
+
+FIELD_SUFFIXES = (".vtu", ".vtk", ".vtp", ".vts", ".vtr", ".xdmf", ".xmf")
+
+
+def _float(value: Any) -> float | None:
+    try:
+        return float(value)
+    except (TypeError, ValueError):
+        return None
+
+
+def load_settings(root: Path) -> ReportSettings:
+    """Read the report's settings from ``<root>/study.yaml`` (a study without the file gets defaults)."""
+    path = root / STUDY_FILE
+    if not path.is_file():
+        return ReportSettings(study_file=None, title=root.name)
+    try:
+        doc = yaml.safe_load(path.read_text(encoding="utf-8")) or {}
+    except yaml.YAMLError as exc:
+        raise InputError(Problem(str(path), "", STUDY_FILE, f"is not valid YAML: {exc}")) from exc
+    if not isinstance(doc, dict):
+        raise InputError(Problem(str(path), "", type(doc).__name__, "must be a mapping of keys"))
+    analysis = doc.get("analysis") or {}
+    iteration = doc.get("iteration") or {}
+    steps = [s for s in (doc.get("steps") or []) if isinstance(s, dict)]
+    quantities = doc.get("quantities") or {}
+    field_files: list[str] = []
+    for s in steps:
+        for w in s.get("writes") or []:
+            if isinstance(w, str) and w.lower().endswith(FIELD_SUFFIXES) and w not in field_files:
+                field_files.append(w)
+    for q in quantities.values() if isinstance(quantities, dict) else []:
+        f = q.get("file") if isinstance(q, dict) else None
+        if isinstance(f, str) and f.lower().endswith(FIELD_SUFFIXES) and f not in field_files:
+            field_files.append(f)
+    units = {str(k): str(v.get("unit", "-")) for k, v in quantities.items() if isinstance(v, dict)} \
+        if isinstance(quantities, dict) else {}
+    residuals = iteration.get("residuals") or []
+    constants = doc.get("constants") or {}
+    report = doc.get("report") or {}
+    problems: list[Problem] = []
+    if not isinstance(report, dict):
+        problems.append(Problem(str(path), "report", report, "must be a mapping"))
+        report = {}
+    refs = _references(root, path, report.get("references"), problems)
+    max_points = report.get("points", 12)
+    if not isinstance(max_points, int) or isinstance(max_points, bool) or max_points < 1:
+        problems.append(Problem(str(path), "report.points", max_points, "must be a whole number >= 1"))
+        max_points = 12
+    unknown = sorted(set(report) - {"references", "points"})
+    for key in unknown:
+        problems.append(Problem(str(path), f"report.{key}", report[key], "unknown key (allowed: references, points)"))
+    if problems:
+        raise InputError(problems, headline=f"{path}: the report block is invalid")
+    return ReportSettings(
+        study_file=path,
+        title=str(doc.get("title") or root.name),
+        description=str(doc.get("description") or ""),
+        study_hash=sha256_file(path),
+        formal_order=_float(analysis.get("formal_order")),
+        safety_factor=_float(analysis.get("safety_factor")),
+        residuals=tuple(str(r) for r in residuals) if isinstance(residuals, list) else (),
+        tolerance=_float(iteration.get("tolerance")),
+        steps=[str(s.get("name")) for s in steps if s.get("name")],
+        field_files=tuple(field_files),
+        units=units,
+        solver=str(constants.get("solver")) if constants.get("solver") else None,
+        references=refs,
+        max_points=max_points,
+    )
+
+
+def _references(root: Path, path: Path, block: Any, problems: list[Problem]) -> dict[str, Reference]:
+    from ..fsutil import confined  # local: keeps the module's import list short for readers
+    from ..errors import UnsafePathError
+
+    if block is None:
+        return {}
+    if not isinstance(block, dict):
+        problems.append(Problem(str(path), "report.references", block, "must map quantity names to {file, x, y}"))
+        return {}
+    out: dict[str, Reference] = {}
+    for name, ref in block.items():
+        key = f"report.references.{name}"
+        if not isinstance(ref, dict):
+            problems.append(Problem(str(path), key, ref, "must be a mapping with file, x and y"))
+            continue
+        missing = [k for k in ("file", "x", "y") if not isinstance(ref.get(k), str) or not ref.get(k)]
+        for k in missing:
+            problems.append(Problem(str(path), f"{key}.{k}", ref.get(k), "is required and must be a text"))
+        extra = sorted(set(ref) - {"file", "x", "y", "label", "point"})
+        for k in extra:
+            problems.append(Problem(str(path), f"{key}.{k}", ref[k], "unknown key (allowed: file, x, y, label, point)"))
+        if missing or extra:
+            continue
+        try:
+            file = confined(root, ref["file"], what=f"{key}.file")
+        except UnsafePathError as exc:
+            problems.append(Problem(str(path), f"{key}.file", ref["file"], str(exc)))
+            continue
+        if not file.is_file():
+            problems.append(Problem(str(path), f"{key}.file", ref["file"], "no such file in the study folder"))
+            continue
+        point = ref.get("point")
+        out[str(name)] = Reference(str(name), file, ref["x"], ref["y"], str(ref.get("label") or ref["file"]),
+                                   None if point is None else str(point))
+    return out

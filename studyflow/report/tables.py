@@ -1,0 +1,99 @@
+"""The report's tables, built from the study's tidy tables and case states."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from .data import StudyData
+
+CASE_COLUMNS = ["case", "point", "level", "status", "iterations", "residual drop [decades]",
+                "final residual", "wall time [s]", "reason"]
+
+
+def _first(frame: pd.DataFrame, names: tuple[str, ...]) -> pd.Series | None:
+    for n in names:
+        if n in frame.columns:
+            return frame[n]
+    return None
+
+
+def residual_summary(histories: pd.DataFrame | None, residuals: list[str]) -> pd.DataFrame:
+    """Per case: iterations run, the drop of the worst residual in decades, the largest final residual.
+
+    drop = log10(|r_first| / |r_last|), taken as the smallest over the study's residuals (common practice:
+    convergence is as good as the worst-converged equation).
+    """
+    cols = ["case", "iterations", "residual drop [decades]", "final residual"]
+    if histories is None or histories.empty:
+        return pd.DataFrame(columns=cols)
+    hist = histories[histories["quantity"].isin(residuals)] if residuals else histories
+    if hist.empty:
+        return pd.DataFrame(columns=cols)
+    hist = hist.assign(case=hist["case"].astype(str)).sort_values(["case", "quantity", "iteration"])
+    grouped = hist.groupby(["case", "quantity"], sort=False)
+    first = grouped["value"].first().abs()
+    last = grouped["value"].last().abs()
+    iters = grouped["iteration"].max()
+    with np.errstate(divide="ignore", invalid="ignore"):
+        drop = np.log10(first / last).replace([np.inf, -np.inf], np.nan)
+    per = pd.DataFrame({"iterations": iters, "drop": drop, "last": last}).groupby(level=0)
+    return pd.DataFrame({
+        "case": per.size().index,
+        "iterations": per["iterations"].max().to_numpy(),
+        "residual drop [decades]": per["drop"].min().to_numpy(),
+        "final residual": per["last"].max().to_numpy(),
+    })
+
+
+def case_table(data: StudyData) -> pd.DataFrame:
+    """One row per case: the live state of its folder first, then the collected case table."""
+    rows: dict[str, dict] = {}
+    if data.cases_table is not None and "case" in data.cases_table:
+        ct = data.cases_table
+        wall = _first(ct, ("wall_time", "wall_time_s", "wall", "seconds"))
+        for i, r in enumerate(ct.to_dict("records")):
+            rows[str(r["case"])] = {
+                "case": str(r["case"]), "point": r.get("point"), "level": r.get("level"),
+                "status": r.get("status", "pending"), "reason": r.get("reason"),
+                "wall time [s]": None if wall is None else wall.iloc[i],
+            }
+    elif data.results is not None:
+        for r in data.results.drop_duplicates("case").to_dict("records"):
+            rows[str(r["case"])] = {"case": str(r["case"]), "point": r.get("point"), "level": r.get("level"),
+                                    "status": r.get("status", "pending"), "reason": r.get("reason")}
+    for name, state in data.cases.items():
+        row = rows.setdefault(name, {"case": name})
+        row["point"] = state.point if state.point is not None else row.get("point")
+        row["level"] = state.level if state.level is not None else row.get("level")
+        row["status"] = state.status
+        if state.reason or state.status != "failed":
+            row["reason"] = state.reason or (row.get("reason") if state.status == "failed" else "")
+        if state.wall_time is not None:
+            row["wall time [s]"] = state.wall_time
+    table = pd.DataFrame(list(rows.values()), columns=["case", "point", "level", "status", "wall time [s]", "reason"])
+    summary = residual_summary(data.histories, list(data.settings.residuals))
+    table = table.merge(summary, on="case", how="left")
+    table["reason"] = table["reason"].fillna("").astype(str).replace("nan", "")
+    table["level"] = pd.to_numeric(table["level"], errors="coerce").astype("Int64")
+    table["iterations"] = pd.to_numeric(table["iterations"], errors="coerce").astype("Int64")
+    return table[CASE_COLUMNS].sort_values(["point", "level", "case"], na_position="last").reset_index(drop=True)
+
+
+SUMMARY_COLUMNS = ["point", "quantity", "levels", "h_fine", "value_fine", "order", "extrapolated", "U",
+                   "U [%]", "gci_fine", "convergence", "method", "iterative_ok", "verdict", "reason"]
+
+
+def uncertainty_summary(data: StudyData) -> pd.DataFrame:
+    """Scalar rows of the analysis table, with U also as a percentage of the finest-mesh value."""
+    unc = data.uncertainty
+    if unc is None or unc.empty:
+        return pd.DataFrame(columns=SUMMARY_COLUMNS)
+    scalar = unc[pd.to_numeric(unc["coord"], errors="coerce").isna()] if "coord" in unc else unc
+    scalar = scalar.copy()
+    with np.errstate(divide="ignore", invalid="ignore"):
+        scalar["U [%]"] = 100.0 * pd.to_numeric(scalar["U"], errors="coerce") / \
+            pd.to_numeric(scalar["value_fine"], errors="coerce").abs()
+    params = [p for p in data.parameters if p in scalar.columns]
+    cols = ["point"] + params + [c for c in SUMMARY_COLUMNS[1:] if c in scalar.columns]
+    return scalar[cols].sort_values(["quantity", "point"]).reset_index(drop=True)

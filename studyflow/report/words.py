@@ -1,0 +1,58 @@
+"""The verdict of the analysis in plain sentences."""
+
+from __future__ import annotations
+
+import math
+
+import pandas as pd
+
+from .figures.common import fmt
+
+
+def _num(value: object) -> float:
+    try:
+        return float(value)  # type: ignore[arg-type]
+    except (TypeError, ValueError):
+        return math.nan
+
+
+def sentence(row: pd.Series, unit: str | None, formal_order: float | None) -> str:
+    """One uncertainty row as a sentence a reviewer can read aloud."""
+    u = "" if not unit or unit == "-" else f" {unit}"
+    parts = [f"On {fmt(row.get('levels'), 3)} meshes the convergence is {row.get('convergence', 'unknown')}"]
+    order = _num(row.get("order"))
+    if math.isfinite(order):
+        formal = f" (formal order {fmt(formal_order, 3)})" if formal_order else ""
+        parts.append(f"the observed order is {fmt(order)}{formal}")
+    ext = _num(row.get("extrapolated"))
+    if math.isfinite(ext):
+        parts.append(f"the extrapolated value is {fmt(ext)}{u}")
+    fine, big_u = _num(row.get("value_fine")), _num(row.get("U"))
+    if math.isfinite(big_u):
+        pct = f" ({fmt(100 * big_u / abs(fine), 3)} % of it)" if math.isfinite(fine) and fine != 0 else ""
+        parts.append(f"the finest-mesh value {fmt(fine)}{u} carries a numerical uncertainty U = {fmt(big_u)}{u}"
+                     f"{pct} by {row.get('method', 'the analysis')}")
+    ok = row.get("iterative_ok")
+    if isinstance(ok, str):
+        ok = ok.strip().lower() in ("true", "1", "yes")
+    if ok is not None and not (isinstance(ok, float) and math.isnan(ok)):
+        it = _num(row.get("iterative_error"))
+        parts.append("the iterative error is small enough" if bool(ok) else
+                     f"the iterative error{(' ' + fmt(it)) if math.isfinite(it) else ''} is too large to ignore")
+    text = "; ".join(parts) + "."
+    reason = row.get("reason")
+    if isinstance(reason, str) and reason.strip() and reason.strip().lower() != "nan":
+        text += f" {reason.strip().rstrip('.')}."
+    return text[0].upper() + text[1:]
+
+
+def verdict_class(verdict: object) -> str:
+    """CSS class of a verdict chip, from the words the analysis uses (anything unknown stays neutral)."""
+    v = str(verdict).lower()
+    if any(w in v for w in ("fail", "diverg", "reject", "not ", "insufficient", "none")):
+        return "bad"
+    if any(w in v for w in ("caution", "warn", "oscillat", "review", "weak", "outside")):
+        return "warn"
+    if any(w in v for w in ("ok", "pass", "good", "converged", "accept", "asymptotic", "monotonic")):
+        return "good"
+    return "neutral"
