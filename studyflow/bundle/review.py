@@ -169,8 +169,16 @@ def audit(source: str | Path, *, into: str | Path | None = None, rerun: RerunCho
 
     source = Path(source)
     if source.is_file():
-        target = Path(into) if into is not None else Path(tempfile.mkdtemp(prefix="studyflow-audit-"))
-        safe_extract(source, target)
+        if into is not None:
+            target = Path(into)
+            safe_extract(source, target)
+        else:
+            target = Path(tempfile.mkdtemp(prefix="studyflow-audit-"))
+            try:
+                safe_extract(source, target)
+            except BaseException:
+                shutil.rmtree(target, ignore_errors=True)  # a refused archive leaves nothing behind
+                raise
         folder = target
     elif source.is_dir():
         folder = source
@@ -186,6 +194,11 @@ def audit(source: str | Path, *, into: str | Path | None = None, rerun: RerunCho
     _integrity(root, manifest, report)
     _environment(root, shipped_env, report)
 
+    if scratch is not None:
+        s_abs, r_abs = Path(scratch).resolve(), root.resolve()
+        if s_abs == r_abs or r_abs in s_abs.parents:
+            raise AuditError(f"--scratch {scratch}: lies inside the bundle {root}; its files would "
+                             "count as unexpected. Give a folder outside it")
     work = Path(scratch) if scratch is not None else Path(tempfile.mkdtemp(prefix="studyflow-audit-scratch-"))
     work.mkdir(parents=True, exist_ok=True)
     try:

@@ -14,7 +14,7 @@ from typing import Any
 
 from ..bundle import RerunChoice, audit, pack
 from ..bundle.text import audit_text, pack_text
-from ..errors import EXIT_OK
+from ..errors import EXIT_OK, UnsafePathError
 
 
 def register(subparsers: Any) -> None:
@@ -70,8 +70,16 @@ def _choice(args: argparse.Namespace) -> RerunChoice:
 
 
 def run_audit(args: argparse.Namespace) -> int:
-    report = audit(args.source, into=args.into, rerun=_choice(args), scratch=args.scratch,
-                          keep_scratch=args.keep_scratch, jobs=max(1, args.jobs))
+    try:
+        report = audit(args.source, into=args.into, rerun=_choice(args), scratch=args.scratch,
+                       keep_scratch=args.keep_scratch, jobs=max(1, args.jobs))
+    except UnsafePathError as exc:
+        if not args.json:
+            raise
+        # machines get the refusal in the same shape as a verdict
+        json.dump({"verdict": "refused", "exit_code": exc.exit_code, "error": str(exc)}, sys.stdout, indent=1)
+        sys.stdout.write("\n")
+        return exc.exit_code
     if args.json:
         json.dump(report.to_json(), sys.stdout, indent=1, default=str)
         sys.stdout.write("\n")

@@ -116,3 +116,20 @@ def test_target_must_be_new_or_empty(tmp_path: Path) -> None:
     from studyflow.errors import AuditError
     with pytest.raises(AuditError, match="not empty"):
         safe_extract(archive, tmp_path / "t")
+
+
+def test_audit_command_refuses_crafted_archive_with_exit_code(tmp_path: Path, capsys) -> None:
+    import argparse
+    import json
+
+    from studyflow.cli.bundle import register
+
+    archive = _archive(tmp_path / "evil.tar.gz", [_file("b/MANIFEST.json", b"{}"),
+                                                  _file("b/../../../escaped.txt", b"x")])
+    parser = argparse.ArgumentParser()
+    register(parser.add_subparsers())
+    args = parser.parse_args(["audit", str(archive), "--into", str(tmp_path / "t"), "--json"])
+    assert args.handler(args) == EXIT_UNSAFE
+    out = json.loads(capsys.readouterr().out)
+    assert out["verdict"] == "refused" and "'b/../../../escaped.txt'" in out["error"]
+    assert sorted(os.listdir(tmp_path)) == ["evil.tar.gz"]
