@@ -107,7 +107,7 @@ def compare_histories(shipped: pd.DataFrame, remade: pd.DataFrame, cases: list[s
     old_all = shipped[shipped["case"].astype(str).isin(cases)]
     for (case, quantity), old in old_all.groupby(["case", "quantity"], sort=True):
         new = remade[(remade["case"].astype(str) == str(case)) & (remade["quantity"] == quantity)]
-        check = QuantityCheck(str(case), str(quantity), "history")
+        check = QuantityCheck(str(case), str(quantity), "iterations")
         checks.append(check)
         rtol, atol = settings.for_quantity(str(quantity))
         if new.empty:

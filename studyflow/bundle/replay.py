@@ -206,7 +206,7 @@ def recompute_uncertainty(root: Path, manifest: Manifest, scratch: Path,
     study = _load(study_file)
     settings = settings or audit_settings(study_file)
     tables = read_results(study_dir)
-    remade = assess(tables.results, study=study, histories=tables.histories)
+    remade = assess(tables.results, tables.histories, study=study, source=str(results_dir / "results"))
     rtol, atol = settings.for_uncertainty()
     cmp = compare_tables(shipped, remade, UNCERTAINTY_KEYS, lambda row: (rtol, atol))
     rel = shipped_path.relative_to(root).as_posix()

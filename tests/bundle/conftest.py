@@ -112,6 +112,9 @@ def run_toy(toy: Toy) -> None:
             subprocess.run([sys.executable, "-m", "studyflow.workflow.runstep", str(study.cases_dir / case.id), step],
                            check=True)
     write_tables(study.root, collect_study(study))
+    from studyflow.analysis import assess_study
+
+    assess_study(study.file, write=True)
 
 
 @dataclass

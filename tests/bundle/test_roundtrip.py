@@ -43,8 +43,12 @@ def test_round_trip_in_another_folder_is_clean(packed_toy, tmp_path: Path, monke
     assert report.ok and report.exit_code == EXIT_OK, report.failures
     assert not [n for n in report.notes if n["what"] == "solver version"]
     checks = report.phases["rerun"].detail["checks"]
-    # 6 cases x (drag scalar + res in the results table + res history)
+    # 6 cases x (drag scalar + res final value in the results table + res at every iteration)
     assert len(checks) == 18 and all(c["ok"] for c in checks)
+    assert sorted({c["kind"] for c in checks}) == ["history", "iterations", "scalar"]
+    # the uncertainty table re-computes from the shipped results: 2 points x 2 quantities
+    unc = report.phases["uncertainty"]
+    assert unc.ran and unc.ok and unc.detail["comparison"]["rows_shipped"] == 4
 
 
 @pytest.mark.parametrize("member", [
@@ -102,3 +106,30 @@ def test_new_release_with_other_numbers_fails_outside_tolerance(packed_toy, tmp_
 def test_tolerance_matches_numpy_isclose(new: float, old: float, rtol: float, atol: float) -> None:
     # reference: numpy.isclose(a, b, rtol, atol) tests |a - b| <= atol + rtol * |b|
     assert close(new, old, rtol, atol) == bool(np.isclose(new, old, rtol=rtol, atol=atol))
+
+
+def test_consistently_forged_uncertainty_is_caught_by_recomputation(packed_toy, tmp_path: Path, monkeypatch) -> None:
+    # a forger who edits the table AND its manifest hashes passes the hash check; re-assessing
+    # the shipped results does not agree with the edited number
+    import hashlib
+    import json
+
+    safe_extract(packed_toy.archive, tmp_path / "review")
+    root = tmp_path / "review" / "toy-bundle"
+    results = root / "payload/studies/toy/results"
+    table = pd.read_parquet(results / "uncertainty.parquet")
+    row = table.index[(table["point"] == "k2.5") & (table["quantity"] == "drag")][0]
+    table.loc[row, "U"] = table.loc[row, "U"] * 0.5
+    table.to_parquet(results / "uncertainty.parquet", index=False)
+    table.to_csv(results / "uncertainty.csv", index=False, float_format="%.17g")
+    manifest = json.loads((root / "MANIFEST.json").read_text())
+    for f in manifest["files"]:
+        if f["path"].endswith(("uncertainty.parquet", "uncertainty.csv")):
+            blob = (root / f["path"]).read_bytes()
+            f["sha256"], f["size"] = hashlib.sha256(blob).hexdigest(), len(blob)
+    (root / "MANIFEST.json").write_text(json.dumps(manifest))
+    report = audit(root)
+    assert report.phases["integrity"].ok
+    assert not report.phases["uncertainty"].ok and report.exit_code == EXIT_AUDIT_FAILED
+    diffs = report.phases["uncertainty"].detail["comparison"]["differences"]
+    assert [(d["row"]["point"], d["row"]["quantity"], d["column"]) for d in diffs] == [("k2.5", "drag", "U")]
