@@ -100,16 +100,16 @@ def prepare(results: pd.DataFrame, *, dim: int | None = None, measure: float = 1
             h = np.where(need & (cells <= 0), -1.0, h)  # keeps the row flagged as non-positive below
     df["h"] = h
     df["size_col"] = size_col
-    label = _row_label(df)
     raw_size = np.where(size_col == "h", df["h"], df["cells"] if "cells" in df.columns else np.nan)
 
     problems: list[Problem] = []
     bad_row = np.zeros(len(df), dtype=bool)
     bad_size = ~(np.isfinite(h) & (h > 0))
+    bad_val = ~np.isfinite(df["value"].to_numpy())
+    label = _row_label(df) if (bad_size | bad_val).any() else None
     for i in np.flatnonzero(bad_size):
         problems.append(Problem(source, f"{size_col[i]}, {label.iat[i]}", float(raw_size[i]),
                                 "mesh size must be a positive finite number"))
-    bad_val = ~np.isfinite(df["value"].to_numpy())
     for i in np.flatnonzero(bad_val):
         problems.append(Problem(source, f"value, {label.iat[i]}", float(df["value"].iat[i]), "value is not finite"))
     bad_row = bad_size | bad_val
@@ -275,15 +275,14 @@ def assess(
     verdict, reason = vd.judge(
         method=out["method"], flat=out["flat"], convergence=out["convergence"], order=out["order"],
         formal_order=s.formal_order, R=out["R"], tiny=out["tiny"], sigma=out["sigma"],
-        data_range=out["data_range"], good_fit=out["good_fit"], problem=groups["problem"].to_numpy(str),
+        data_range=out["data_range"], good_fit=out["good_fit"], problem=groups["problem"].to_numpy(object),
         tolerance=s.order_tolerance,
     )
     ok = iterative_negligible(out["iterative_error"], out["U"], s.negligible)
     flag = ok == False  # noqa: E712 (object array of True/False/None)
-    reason = np.where(flag, vd._cat(reason, "; iterative error ", vd.fmt(out["iterative_error"]),
-                                    f" is not below {100 * s.negligible:.0f} % of U"), reason)
-    fine_nc = _fine_not_converged(good, groups)
-    reason = np.where(fine_nc, vd._cat(reason, "; the finest case is not iteratively converged"), reason)
+    reason = vd.append(reason, flag, [f"iterative error {e:.3g} is not below {100 * s.negligible:.0f} % of U"
+                                      for e in out["iterative_error"][flag]])
+    reason = vd.append(reason, _fine_not_converged(good, groups), "the finest case is not iteratively converged")
 
     table = pd.DataFrame({
         "point": groups["point"].to_numpy(), "quantity": groups["quantity"].to_numpy(),
@@ -292,7 +291,7 @@ def assess(
                                "gci_medium", "asymptotic_ratio")},
         "convergence": out["convergence"].astype(object), "R": out["R"], "method": out["method"].astype(object),
         "U": out["U"], "u_num": out["U"] / s.coverage, "iterative_error": out["iterative_error"],
-        "iterative_ok": pd.array(ok, dtype="boolean"), "verdict": verdict, "reason": reason.astype(object),
+        "iterative_ok": pd.array(ok, dtype="boolean"), "verdict": verdict, "reason": reason,
     })
     return _with_parameters(table, results)
 

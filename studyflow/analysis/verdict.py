@@ -30,15 +30,13 @@ ASYMPTOTIC = "in the asymptotic range"
 ORDER_TOLERANCE = 0.25
 
 
-def fmt(values: NDArray) -> NDArray[np.str_]:
-    """Three significant digits for every entry (vectorised printf)."""
-    return np.char.mod("%.3g", np.asarray(values, dtype=float))
-
-
-def _cat(*parts: object) -> NDArray[np.str_]:
-    out = np.asarray(parts[0]).astype(str)
-    for p in parts[1:]:
-        out = np.char.add(out, np.asarray(p).astype(str))
+def append(reason: NDArray, mask: NDArray, texts: list[str] | str) -> NDArray:
+    """``reason`` with '; ' + text appended where ``mask`` holds (texts: one per masked row, or one)."""
+    out = reason.copy()
+    idx = np.flatnonzero(mask)
+    if idx.size:
+        add = [texts] * idx.size if isinstance(texts, str) else texts
+        out[idx] = [f"{r}; {t}" for r, t in zip(reason[idx], add)]
     return out
 
 
@@ -59,7 +57,6 @@ def judge(
 ) -> tuple[NDArray[np.str_], NDArray[np.str_]]:
     """Verdict and reason arrays for every row (see the module docstring for the rules)."""
     pf = float(formal_order)
-    p_s, pf_s, R_s = fmt(order), fmt(pf), fmt(R)
     none = method == "none"
     two = method == "two-level"
     ls = method == "least-squares"
@@ -77,22 +74,33 @@ def judge(
         low,
         high,
     ]
-    verdicts = [CANNOT, FLAT, TWO, INDETERMINATE, NOT_ASYMPTOTIC, DIVERGING, OSCILLATORY, BELOW_FORMAL, NOT_ASYMPTOTIC]
+    verdicts = [CANNOT, FLAT, TWO, INDETERMINATE, NOT_ASYMPTOTIC, DIVERGING, OSCILLATORY, BELOW_FORMAL,
+                NOT_ASYMPTOTIC, ASYMPTOTIC]
     tol_s = f"{100 * tolerance:.0f} %"
-    reasons = [
-        problem,
-        _cat("every difference between levels is within the noise threshold ", fmt(tiny)),
-        _cat("two levels: GCI with the formal order ", pf_s, " and Fs = 3; refine once more to observe the order"),
-        _cat("a difference between levels is within the noise threshold ", fmt(tiny),
-             "; U = 3 x the spread of the values"),
-        _cat("least-squares scatter sigma = ", fmt(sigma), " is not below the data range ", fmt(data_range),
-             "; U = 3 sigma / range x (error + sigma + misfit)"),
-        _cat("R = ", R_s, ": the differences grow as the mesh is refined; no uncertainty estimate"),
-        _cat("R = ", R_s, ": the differences change sign; GCI from the apparent order p = ", p_s),
-        _cat("observed order ", p_s, " is below the formal order ", pf_s, " by more than ", tol_s),
-        _cat("observed order ", p_s, " is above the formal order ", pf_s, " by more than ", tol_s),
+    pf_s = f"{pf:.3g}"
+    # Reason text per rule; each is formatted only for the rows the rule decides.
+    texts = [
+        lambda i: problem[i],
+        lambda i: [f"every difference between levels is within the noise threshold {t:.3g}" for t in tiny[i]],
+        lambda i: [f"two levels: GCI with the formal order {pf_s} and Fs = 3; refine once more to observe "
+                   "the order"] * len(i),
+        lambda i: [f"a difference between levels is within the noise threshold {t:.3g}; U = 3 x the spread "
+                   "of the values" for t in tiny[i]],
+        lambda i: [f"least-squares scatter sigma = {a:.3g} is not below the data range {b:.3g}; "
+                   "U = 3 sigma / range x (error + sigma + misfit)" for a, b in zip(sigma[i], data_range[i])],
+        lambda i: [f"R = {r:.3g}: the differences grow as the mesh is refined; no uncertainty estimate"
+                   for r in R[i]],
+        lambda i: [f"R = {r:.3g}: the differences change sign; GCI from the apparent order p = {p:.3g}"
+                   for r, p in zip(R[i], order[i])],
+        lambda i: [f"observed order {p:.3g} is below the formal order {pf_s} by more than {tol_s}" for p in order[i]],
+        lambda i: [f"observed order {p:.3g} is above the formal order {pf_s} by more than {tol_s}" for p in order[i]],
+        lambda i: [f"observed order {p:.3g} is within {tol_s} of the formal order {pf_s}" for p in order[i]],
     ]
-    verdict = np.select(conds, verdicts, default=ASYMPTOTIC).astype(object)
-    reason = np.select(conds, reasons, default=_cat("observed order ", p_s, " is within ", tol_s,
-                                                    " of the formal order ", pf_s))
-    return verdict, reason.astype(object)
+    code = np.select(conds, list(range(len(conds))), default=len(conds))
+    verdict = np.asarray(verdicts, dtype=object)[code]
+    reason = np.empty(code.shape, dtype=object)
+    for k, text in enumerate(texts):
+        idx = np.flatnonzero(code == k)
+        if idx.size:
+            reason[idx] = text(idx)
+    return verdict, reason

@@ -1,0 +1,187 @@
+"""Table-level assessment of tidy results tables (columns per DEVELOPERS.md)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from studyflow.analysis import COLUMNS, assess, profile_summary, three_level
+from studyflow.analysis.leastsquares import least_squares_uncertainty
+from studyflow.errors import AnalysisError, InputError
+
+H = [0.4, 0.2, 0.1, 0.05]  # coarsest (level 0) to finest
+
+
+def _row(point, level, h, quantity, value, *, kind="scalar", coord=np.nan, status="done", converged=True, Re=1e4):
+    return dict(study="s", case=f"{point}--m{level}", point=point, level=level, Re=Re, cells=(1 / h) ** 2, h=h,
+                quantity=quantity, kind=kind, coord=coord, value=value, unit="-", status=status,
+                converged=converged, reason="")
+
+
+def _table(levels=(0, 1, 2), law=lambda h: 1.0 + 0.5 * h**2):
+    rows = []
+    for point, re in (("p1", 1e4), ("p2", 2e4)):
+        for lev in levels:
+            h = H[lev]
+            rows.append(_row(point, lev, h, "drag", law(h), Re=re))
+            for x in (0.25, 0.75):
+                rows.append(_row(point, lev, h, "cf", x * law(h), kind="profile", coord=x, Re=re))
+    return pd.DataFrame(rows)
+
+
+def test_columns_and_one_row_per_point_quantity_station():
+    unc = assess(_table(), None, 2.0)
+    assert list(unc.columns) == COLUMNS + ["Re"]  # DEVELOPERS.md "uncertainty" columns plus parameters
+    assert len(unc) == 2 * (1 + 2)
+    assert set(unc.loc[unc["quantity"] == "cf", "coord"]) == {0.25, 0.75}
+    assert unc.loc[unc["quantity"] == "drag", "coord"].isna().all()
+    assert dict(zip(unc["point"], unc["Re"])) == {"p1": 1e4, "p2": 2e4}
+
+
+def test_three_levels_match_the_numerical_function():
+    # The table must only group and call: compare with three_level on the same arrays.
+    unc = assess(_table(), None, 2.0)
+    ref = three_level(np.array([[H[2], H[1], H[0]]]), np.array([[1 + 0.5 * H[2] ** 2, 1 + 0.5 * H[1] ** 2,
+                                                                1 + 0.5 * H[0] ** 2]]))
+    drag = unc[(unc["quantity"] == "drag") & (unc["point"] == "p1")].iloc[0]
+    assert drag["method"] == "three-level"
+    assert drag["order"] == pytest.approx(ref.order[0], rel=1e-12)
+    assert drag["extrapolated"] == pytest.approx(1.0, rel=1e-12)  # analytic limit of 1 + 0.5 h^2
+    assert drag["U"] == pytest.approx(ref.U[0], rel=1e-12)
+    assert drag["u_num"] == pytest.approx(ref.U[0] / 1.15, rel=1e-12)  # divisor documented in table.COVERAGE
+    assert drag["verdict"] == "in the asymptotic range"
+    assert drag["levels"] == 3 and drag["h_fine"] == H[2]
+
+
+def test_only_done_rows_are_used():
+    t = _table(levels=(0, 1, 2, 3))
+    t.loc[t["level"] == 3, "status"] = "failed"
+    t.loc[t["level"] == 3, "value"] = np.nan
+    unc = assess(t, None, 2.0)
+    assert (unc["levels"] == 3).all() and (unc["method"] == "three-level").all()
+
+
+def test_four_levels_use_least_squares():
+    t = _table(levels=(0, 1, 2, 3), law=lambda h: 2.0 - 0.3 * h**1.8)
+    unc = assess(t, None, 2.0)
+    assert (unc["method"] == "least-squares").all()
+    drag = unc[(unc["quantity"] == "drag")].iloc[0]
+    ref = least_squares_uncertainty(np.array([H[::-1]]), 2.0 - 0.3 * np.array([H[::-1]]) ** 1.8)
+    assert drag["U"] == pytest.approx(ref.U[0], rel=1e-9)
+    assert drag["order"] == pytest.approx(1.8, rel=1e-6)  # analytic order of the data
+    assert drag["verdict"] == "in the asymptotic range"  # 1.8 is within 25 % of the formal 2
+    assert drag["extrapolated"] == pytest.approx(2.0, rel=1e-9)
+
+
+def test_two_levels_and_one_level_are_reported_not_raised():
+    t = _table(levels=(1, 2))
+    t = pd.concat([t, pd.DataFrame([_row("p3", 2, H[2], "drag", 1.0)])], ignore_index=True)
+    unc = assess(t, None, 2.0)
+    two = unc[unc["point"] != "p3"]
+    assert (two["method"] == "two-level").all()
+    assert (two["verdict"] == "order assumed: two levels only").all()
+    lone = unc[unc["point"] == "p3"].iloc[0]
+    assert lone["method"] == "none" and lone["verdict"] == "cannot assess"
+    assert "fewer than two usable mesh levels" in lone["reason"]
+    with pytest.raises(AnalysisError, match="fewer than two usable mesh levels"):
+        assess(t, None, 2.0, strict=True)
+
+
+@pytest.mark.parametrize(
+    "values,verdict",
+    [
+        ((1.0, 1.1, 0.8), "oscillatory"),
+        ((1.0, 1.3, 1.4), "diverging"),
+        ((2.0, 2.0, 2.0), "no discernible mesh dependence"),
+        ((2.0, 2.0, 2.1), "indeterminate"),
+        # Equal differences on equal ratios: R = 1, no positive order exists (the class boundary).
+        ((1.0, 1.25, 1.5), "diverging"),  # exact binary fractions: R = 1 exactly
+        ((1.0, 1.01, 1.025), "observed order below formal"),  # p = ln(1.5)/ln(2) = 0.58
+        ((1.0, 1.01, 1.1), "not yet asymptotic: refine further"),  # p = ln(9)/ln(2) = 3.17
+    ],
+)
+def test_verdicts_for_awkward_data(values, verdict):
+    # values fine -> coarse on h = 0.1, 0.2, 0.4; classes after Stern et al. (2001), from memory.
+    rows = [_row("p", lev, H[lev], "q", v) for lev, v in zip((2, 1, 0), values)]
+    with np.errstate(all="raise"):
+        unc = assess(pd.DataFrame(rows), None, 2.0)
+    got = unc.iloc[0]
+    assert got["verdict"] == verdict
+    assert isinstance(got["reason"], str) and got["reason"]
+
+
+def test_bad_rows_strict_error_names_row_column_and_value():
+    t = _table()
+    t.loc[0, "h"] = -1.0
+    t.loc[1, "value"] = np.inf
+    t = pd.concat([t, t.iloc[[2]]], ignore_index=True)  # a duplicate level
+    with pytest.raises(AnalysisError) as exc:
+        assess(t, None, 2.0, strict=True, source="study/results/results.parquet")
+    text = str(exc.value)
+    assert "study/results/results.parquet: h, row 0" in text and "-1.0" in text
+    assert "value, row 1" in text and "inf" in text
+    assert "duplicate level" in text
+    # Lenient mode (study-level): the other groups are still assessed.
+    unc = assess(t, None, 2.0)
+    assert (unc["verdict"] == "cannot assess").sum() >= 1
+    assert (unc["verdict"] == "in the asymptotic range").sum() >= 1
+
+
+def test_missing_columns_are_input_errors():
+    with pytest.raises(InputError, match="required column missing"):
+        assess(pd.DataFrame({"point": ["a"], "value": [1.0]}), None, 2.0)
+
+
+def test_h_from_cells_needs_dimension():
+    t = _table().drop(columns=["h"])
+    with pytest.raises(InputError, match="dimension"):
+        assess(t, None, 2.0)
+    unc = assess(t, None, 2.0, dim=2)  # cells = (1/h)^2, so h = (1/cells)^(1/2) recovers H
+    assert unc["h_fine"].to_numpy() == pytest.approx(H[2])
+
+
+def test_iterative_error_from_histories_is_flagged_beside_U():
+    t = _table()
+    hist = []
+    for case in t["case"].unique():
+        point, lev = case.split("--m")
+        for it in range(1, 201):
+            # p1: converged history; p2: still oscillating by 1e-3, well above 1 % of its U.
+            wobble = 0.0 if point == "p1" else 1e-3 * np.sin(it)
+            hist.append(dict(study="s", case=case, point=point, level=int(lev), quantity="drag", iteration=it,
+                             value=1.0 + wobble + 0.1 * np.exp(-it / 5.0)))
+            hist.append(dict(study="s", case=case, point=point, level=int(lev), quantity="res", iteration=it,
+                             value=np.exp(-it / 10.0)))
+    unc = assess(t, pd.DataFrame(hist), 2.0, residuals=["res"])
+    drag = unc[unc["quantity"] == "drag"].set_index("point")
+    assert bool(drag.loc["p1", "iterative_ok"]) is True
+    assert bool(drag.loc["p2", "iterative_ok"]) is False
+    assert "iterative error" in drag.loc["p2", "reason"]
+    assert drag.loc["p2", "iterative_error"] == pytest.approx(1e-3, rel=0.05)  # half range of sin over window
+    assert unc.loc[unc["quantity"] == "cf", "iterative_ok"].isna().all()  # no history for profiles
+
+
+def test_profile_summary_average_order():
+    unc = assess(_table(), None, 2.0)
+    prof = profile_summary(unc)
+    assert list(prof["stations"]) == [2, 2]
+    assert prof["order_average"].to_numpy() == pytest.approx(2.0, rel=1e-9)  # analytic order of the data
+
+
+def test_vectorised_table_equals_group_by_group():
+    rng = np.random.default_rng(7)
+    rows = []
+    for g in range(30):
+        p, c = rng.uniform(0.6, 3.0), rng.uniform(-1, 1)
+        for lev in range(int(rng.integers(2, 5))):
+            h = H[lev]
+            rows.append(_row(f"g{g}", lev, h, "q", 1.0 + c * h**p + rng.normal(0, 1e-4)))
+    t = pd.DataFrame(rows)
+    whole = assess(t, None, 2.0).set_index("point")
+    for g, part in t.groupby("point"):
+        one = assess(part, None, 2.0).iloc[0]
+        for col in ("U", "order", "extrapolated"):
+            a, b = whole.loc[g, col], one[col]
+            assert (np.isnan(a) and np.isnan(b)) or a == pytest.approx(b, rel=1e-12), (g, col)
+        assert whole.loc[g, "verdict"] == one["verdict"]
