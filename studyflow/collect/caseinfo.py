@@ -2,7 +2,8 @@
 
 This is the only module that knows the layout written by the layers below (DEVELOPERS.md, "Case
 folders"): ``cases/<id>/.studyflow/case.json`` from rendering, ``<step>.done`` markers and
-``<step>.status.json`` from the workflow, and the attributes of ``studyflow.spec.Study`` and of the
+``<step>.status.json`` from the workflow (``studyflow.workflow.runstep``: ``state`` ok | failed |
+running, ``reason``, ``exit_code``, ``wall_s``), and the attributes of ``studyflow.spec.Study`` and of the
 design's case table. If one of those changes, this is the file to adjust.
 """
 
@@ -171,6 +172,7 @@ def case_state(folder: Path, steps: Iterable[str]) -> CaseState:
     have_wall = False
     stamps: list[tuple[str, int, int]] = []
     missing: list[str] = []
+    running: list[str] = []
     for step in steps:
         status_path = state / f"{step}.status.json"
         done_path = state / f"{step}.done"
@@ -182,19 +184,27 @@ def case_state(folder: Path, steps: Iterable[str]) -> CaseState:
             # A status file is written atomically, so a broken one means outside interference.
             return CaseState("failed", f"step {step}: {status_path.name} is not valid JSON")
         if status is not None:
-            t = _num(status.get("wall_time", status.get("wall_s", status.get("elapsed"))))
+            t = _num(status.get("wall_s", status.get("wall_time")))
             if t is not None:
                 wall += t
                 have_wall = True
-            if str(status.get("status", "")).lower() not in ("ok", "done", "success"):
-                reason = status.get("reason") or f"status {status.get('status')!r}"
-                code = status.get("exit_code", status.get("returncode"))
+            word = str(status.get("state", status.get("status", ""))).lower()
+            if word == "running":
+                running.append(step)
+                status = None
+            elif word != "ok" and missing:
+                # A failure recorded after an earlier step that is not done (being rerun) is stale.
+                status = None
+            elif word != "ok":
+                reason = status.get("reason") or f"state {word!r}"
+                code = status.get("exit_code")
                 if code not in (None, 0) and "exit code" not in str(reason):
                     reason = f"{reason} (exit code {code})"
                 return CaseState("failed", f"step {step}: {reason}", wall if have_wall else None)
-            stamp = _stamp(status_path)
-            if stamp:
-                stamps.append(stamp)
+            else:
+                stamp = _stamp(status_path)
+                if stamp:
+                    stamps.append(stamp)
         done = _stamp(done_path)
         if status is None or done is None:
             missing.append(step)
@@ -202,6 +212,11 @@ def case_state(folder: Path, steps: Iterable[str]) -> CaseState:
             stamps.append(done)
     if missing:
         first = missing[0]
-        reason = "not run yet" if len(missing) == len(steps) else f"step {first} not finished"
+        if running:
+            reason = f"step {running[0]} running"
+        elif len(missing) == len(steps):
+            reason = "not run yet"
+        else:
+            reason = f"step {first} not finished"
         return CaseState("pending", reason, wall if have_wall else None)
     return CaseState("done", "", wall if have_wall else None, tuple(stamps))

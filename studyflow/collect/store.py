@@ -43,15 +43,17 @@ def table_paths(study_dir: str | os.PathLike) -> dict[str, Path]:
 def write_tables(study_dir: str | os.PathLike, tables: ResultTables) -> dict[str, Path]:
     """Write results, histories (CSV and Parquet) and cases.csv into ``<study_dir>/results/``.
 
-    Each file is replaced atomically. Histories go first and cases.csv last, so a results table
+    Each file is replaced atomically, after all of them were serialised. Histories go first and cases.csv last, so a results table
     on disk never refers to histories that are not there yet. Returns the paths written.
     """
     paths = table_paths(study_dir)
     frames = {"histories": tables.histories, "results": tables.results, "cases": tables.cases}
-    for name, path in paths.items():
+    blobs = {}
+    for name in paths:  # serialise everything first: a conversion error then touches no file
         stem, ext = name.split(".")
-        data = _parquet_bytes(frames[stem]) if ext == "parquet" else _csv_bytes(frames[stem])
-        atomic_write_bytes(path, data)
+        blobs[name] = _parquet_bytes(frames[stem]) if ext == "parquet" else _csv_bytes(frames[stem])
+    for name, path in paths.items():
+        atomic_write_bytes(path, blobs[name])
     return paths
 
 

@@ -1,0 +1,93 @@
+"""One case's collection: confinement to the case folder, and the state of a case's steps."""
+
+from __future__ import annotations
+
+import json
+import os
+from pathlib import Path
+
+import pytest
+from pydantic import ValidationError
+
+from studyflow.collect import read_quantity
+from studyflow.collect.caseinfo import case_state
+from studyflow.collect.check import Bound
+from studyflow.collect.readers.keyed import KeyedOptions
+from studyflow.collect import registry
+from studyflow.spec.quantities import QuantitySpec
+from tests.collect.conftest import bind_one
+
+
+@pytest.fixture
+def case(tmp_path: Path) -> Path:
+    (tmp_path / "secret.json").write_text('{"a": 42}')
+    folder = tmp_path / "case"
+    folder.mkdir()
+    (folder / "m.json").write_text('{"a": 1}')
+    return folder
+
+
+def unchecked(file: str) -> Bound:
+    """A quantity that skipped the study-file check, to exercise the read-time guard on its own."""
+    spec = QuantitySpec.model_construct(source="json", file=file, unit="-", series=False, description="")
+    return Bound("q", spec, registry.get("json"), KeyedOptions(key="a"))
+
+
+def test_escapes_refused_when_the_study_is_checked() -> None:
+    for bad in ("../secret.json", "/etc/passwd", "sub/../../secret.json"):
+        with pytest.raises(ValidationError) as err:
+            QuantitySpec.model_validate({"from": "json", "file": bad, "key": "a"})
+        assert "file" in str(err.value)
+    assert QuantitySpec.model_validate({"from": "json", "file": "sub/../m.json", "key": "a"}).file == "sub/../m.json"
+
+
+def test_escapes_refused_when_reading(case: Path) -> None:
+    for bad in ("../secret.json", str(case.parent / "secret.json")):
+        r = read_quantity(case, unchecked(bad))
+        assert r.status == "failed" and f"{bad}: refused: quantities.q.file" in r.reason, r.reason
+    assert read_quantity(case, unchecked("m.json")).reading.final == 1.0
+
+
+def test_symlink_out_of_the_case_refused_inside_allowed(case: Path) -> None:
+    os.symlink(case.parent / "secret.json", case / "link.json")
+    r = read_quantity(case, bind_one({"from": "json", "file": "link.json", "key": "a"}))
+    assert r.status == "failed" and "link.json: refused:" in r.reason and "leaves" in r.reason
+    os.symlink(case.parent, case / "up")
+    r = read_quantity(case, bind_one({"from": "json", "file": "up/secret.json", "key": "a"}))
+    assert r.status == "failed" and "refused" in r.reason
+    os.symlink(case / "m.json", case / "inner.json")
+    assert read_quantity(case, bind_one({"from": "json", "file": "inner.json", "key": "a"})).reading.final == 1.0
+
+
+def test_a_fifo_is_not_read(case: Path) -> None:
+    os.mkfifo(case / "pipe.json")  # reading it would block the collection
+    r = read_quantity(case, bind_one({"from": "json", "file": "pipe.json", "key": "a"}))
+    assert r.reason == "pipe.json: not a regular file"
+
+
+def _status(folder: Path, step: str, state: str, **extra) -> None:
+    d = folder / ".studyflow"
+    d.mkdir(parents=True, exist_ok=True)
+    (d / f"{step}.status.json").write_text(json.dumps({"state": state, **extra}))
+
+
+def test_case_state_from_markers(tmp_path: Path) -> None:
+    f = tmp_path / "c"
+    assert case_state(f, ["solve", "post"]).reason == "not run yet"
+    _status(f, "solve", "running")
+    assert (case_state(f, ["solve", "post"]).status, case_state(f, ["solve", "post"]).reason) == \
+        ("pending", "step solve running")
+    _status(f, "solve", "ok", wall_s=2.0)
+    # ok status without its done marker: the step was interrupted after writing its outputs.
+    assert case_state(f, ["solve"]).status == "pending"
+    (f / ".studyflow" / "solve.done").write_text("{}")
+    assert case_state(f, ["solve"]).status == "done"
+    _status(f, "post", "failed", reason="missing output summary.json", exit_code=0)
+    s = case_state(f, ["solve", "post"])
+    assert (s.status, s.reason, s.wall_time) == ("failed", "step post: missing output summary.json", 2.0)
+    _status(f, "post", "failed", reason="timed out after 60 s", exit_code=-9)
+    assert case_state(f, ["solve", "post"]).reason == "step post: timed out after 60 s (exit code -9)"
+    # solve being rerun: the old post failure no longer stands.
+    (f / ".studyflow" / "solve.done").unlink()
+    _status(f, "solve", "running")
+    assert case_state(f, ["solve", "post"]).status == "pending"
