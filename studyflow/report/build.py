@@ -254,11 +254,13 @@ class _Builder:
         return state.case, out, notes
 
 
-def build_report(study: str | os.PathLike, out: str | os.PathLike | None = None,
+def build_report(study: str | os.PathLike, out: str | os.PathLike | None = None, *, fields: bool = True,
                  renderer_argv: list[str] | None = None) -> ReportResult:
     """Build ``<study>/report/index.html`` with every figure (PNG, SVG) and table (CSV, Markdown, LaTeX).
 
     Works on a study at any stage: cases still pending are counted and shown as pending.
+    ``fields=False`` skips the field pictures and the mesh family; ``renderer_argv`` replaces the
+    command of the off-screen field renderer (tests use it to simulate a crash).
     """
     root = Path(study)
     if not root.is_dir():
@@ -277,7 +279,10 @@ def build_report(study: str | os.PathLike, out: str | os.PathLike | None = None,
     sweep_figs = b.sweeps()
     cases_sorted = ctable["case"].astype(str).tolist()
     hist_figs = b.histories(cases_sorted)
-    fields_case, field_figs, field_notes = b.fields(ctable)
+    if fields:
+        fields_case, field_figs, field_notes = b.fields(ctable)
+    else:
+        fields_case, field_figs, field_notes = "", [], ["Field pictures were not requested for this build."]
 
     tables: list[TableFile] = []
     summary = uncertainty_summary(data)

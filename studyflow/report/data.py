@@ -14,7 +14,8 @@ from typing import Any
 
 import pandas as pd
 
-from ..errors import InputError, Problem
+from ..collect import read_results
+from ..errors import InputError, Problem, StudyflowError
 from .settings import ReportSettings, load_settings
 
 # Columns of the tidy results table that are not parameters (DEVELOPERS.md, "Tidy tables").
@@ -22,6 +23,8 @@ RESULT_FIXED = [
     "study", "case", "point", "level", "cells", "h", "quantity", "kind", "coord", "value", "unit",
     "status", "converged", "reason",
 ]
+TEXT_COLUMNS = ("study", "case", "point", "quantity", "kind", "unit", "status", "reason", "verdict", "method",
+                "convergence")
 UNCERTAINTY_FIXED = [
     "point", "quantity", "coord", "levels", "h_fine", "value_fine", "order", "extrapolated", "e_a",
     "e_ext", "gci_fine", "gci_medium", "asymptotic_ratio", "convergence", "R", "method", "U", "u_num",
@@ -74,7 +77,12 @@ def read_table(folder: Path, stem: str) -> tuple[pd.DataFrame | None, Path | Non
     A table that exists but cannot be read is an input error naming the file: a half-written or
     foreign file must not silently become an empty report section.
     """
-    for suffix, reader in ((".parquet", pd.read_parquet), (".csv", pd.read_csv)):
+    def read_csv(path: Path) -> pd.DataFrame:
+        # Text columns stay text even when every value looks like a number (a point id "3").
+        head = pd.read_csv(path, nrows=0).columns
+        return pd.read_csv(path, dtype={c: "str" for c in TEXT_COLUMNS if c in head})
+
+    for suffix, reader in ((".parquet", pd.read_parquet), (".csv", read_csv)):
         path = folder / f"{stem}{suffix}"
         if path.is_file():
             try:
@@ -116,16 +124,23 @@ def scan_cases(root: Path, steps: list[str]) -> dict[str, CaseState]:
         )
         statuses = {p.name.removesuffix(".status.json"): _read_json(p)
                     for p in sorted(meta.parent.glob("*.status.json"))}
-        failed = [(s, d) for s, d in statuses.items() if str(d.get("status", "")).lower() == "failed"]
+        def state_of(d: dict[str, Any]) -> str:
+            # The step runner writes "state"; "status" is accepted for files written by other tools.
+            return str(d.get("state", d.get("status", ""))).lower()
+
+        failed = [(s, d) for s, d in statuses.items() if state_of(d) == "failed"]
         wanted = steps or list(statuses)
-        ok = [s for s in wanted if str(statuses.get(s, {}).get("status", "")).lower() == "ok"]
+        ok = [s for s in wanted if state_of(statuses.get(s, {})) == "ok"]
+        running = [s for s, d in statuses.items() if state_of(d) == "running"]
         if failed:
             state.status = "failed"
             step, detail = failed[0]
             state.reason = f"{step}: {detail.get('reason') or 'failed'}"
         elif wanted and len(ok) == len(wanted):
             state.status = "done"
-        walls = [_as_float(d.get("wall_time", d.get("wall_time_s"))) for d in statuses.values()]
+        elif running:
+            state.reason = f"{running[0]}: running"
+        walls = [_as_float(d.get("wall_s", d.get("wall_time"))) for d in statuses.values()]
         walls = [w for w in walls if w is not None]
         state.wall_time = sum(walls) if walls else None
         starts = sorted(str(d["started"]) for d in statuses.values() if d.get("started"))
@@ -162,6 +177,14 @@ def load(root: str | Path) -> StudyData:
         tables[stem] = df
         if path is not None:
             files[stem] = path
+    if all(tables[s] is not None for s in ("results", "histories", "cases")):
+        # The collection layer's reader restores its own column types; prefer it when it can read all three.
+        try:
+            collected = read_results(root)
+        except StudyflowError:
+            pass
+        else:
+            tables.update(results=collected.results, histories=collected.histories, cases=collected.cases)
     return StudyData(
         root=root,
         settings=settings,

@@ -25,6 +25,7 @@ from typing import Any
 
 import yaml
 
+from ..analysis import Settings as AnalysisSettings
 from ..errors import InputError, Problem
 from ..fsutil import sha256_file
 
@@ -117,7 +118,7 @@ def load_settings(root: Path) -> ReportSettings:
         title=str(doc.get("title") or root.name),
         description=str(doc.get("description") or ""),
         study_hash=sha256_file(path),
-        formal_order=_float(analysis.get("formal_order")),
+        formal_order=_float(analysis.get("formal_order")) or AnalysisSettings().formal_order,
         safety_factor=_float(analysis.get("safety_factor")),
         residuals=tuple(str(r) for r in residuals) if isinstance(residuals, list) else (),
         tolerance=_float(iteration.get("tolerance")),

@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from ..analysis import residual_summary as analysis_residuals
 from .data import StudyData
 
 CASE_COLUMNS = ["case", "point", "level", "status", "iterations", "residual drop [decades]",
@@ -21,28 +22,22 @@ def _first(frame: pd.DataFrame, names: tuple[str, ...]) -> pd.Series | None:
 def residual_summary(histories: pd.DataFrame | None, residuals: list[str]) -> pd.DataFrame:
     """Per case: iterations run, the drop of the worst residual in decades, the largest final residual.
 
-    drop = log10(|r_first| / |r_last|), taken as the smallest over the study's residuals (common practice:
-    convergence is as good as the worst-converged equation).
+    The per-residual drop log10(r_first / r_final) is the analysis layer's (``analysis.residual_summary``);
+    the case keeps the smallest drop over its residuals (common practice: a case is as converged as its
+    worst-converged equation).
     """
     cols = ["case", "iterations", "residual drop [decades]", "final residual"]
     if histories is None or histories.empty:
         return pd.DataFrame(columns=cols)
-    hist = histories[histories["quantity"].isin(residuals)] if residuals else histories
-    if hist.empty:
+    per = analysis_residuals(histories.assign(case=histories["case"].astype(str)), list(residuals) or None)
+    if per.empty:
         return pd.DataFrame(columns=cols)
-    hist = hist.assign(case=hist["case"].astype(str)).sort_values(["case", "quantity", "iteration"])
-    grouped = hist.groupby(["case", "quantity"], sort=False)
-    first = grouped["value"].first().abs()
-    last = grouped["value"].last().abs()
-    iters = grouped["iteration"].max()
-    with np.errstate(divide="ignore", invalid="ignore"):
-        drop = np.log10(first / last).replace([np.inf, -np.inf], np.nan)
-    per = pd.DataFrame({"iterations": iters, "drop": drop, "last": last}).groupby(level=0)
+    per = per.replace([np.inf, -np.inf], np.nan).groupby("case")
     return pd.DataFrame({
-        "case": per.size().index,
+        "case": per.size().index.astype(str),
         "iterations": per["iterations"].max().to_numpy(),
-        "residual drop [decades]": per["drop"].min().to_numpy(),
-        "final residual": per["last"].max().to_numpy(),
+        "residual drop [decades]": per["drop_orders"].min().to_numpy(),
+        "final residual": per["final"].max().to_numpy(),
     })
 
 
@@ -77,7 +72,8 @@ def case_table(data: StudyData) -> pd.DataFrame:
     table["reason"] = table["reason"].fillna("").astype(str).replace("nan", "")
     table["level"] = pd.to_numeric(table["level"], errors="coerce").astype("Int64")
     table["iterations"] = pd.to_numeric(table["iterations"], errors="coerce").astype("Int64")
-    return table[CASE_COLUMNS].sort_values(["point", "level", "case"], na_position="last").reset_index(drop=True)
+    # The collected order (the design's order of points, coarse to fine) reads better than sorting ids as text.
+    return table[CASE_COLUMNS].reset_index(drop=True)
 
 
 SUMMARY_COLUMNS = ["point", "quantity", "levels", "h_fine", "value_fine", "order", "extrapolated", "U",

@@ -46,9 +46,25 @@ def sentence(row: pd.Series, unit: str | None, formal_order: float | None) -> st
     return text[0].upper() + text[1:]
 
 
+# The analysis layer's verdict words (studyflow.analysis.verdict) and how the report colours them.
+VERDICT_CLASS = {
+    "in the asymptotic range": "good",
+    "no discernible mesh dependence": "good",
+    "order assumed: two levels only": "warn",
+    "indeterminate": "warn",
+    "not yet asymptotic: refine further": "warn",
+    "observed order below formal": "warn",
+    "oscillatory": "warn",
+    "diverging": "bad",
+    "cannot assess": "bad",
+}
+
+
 def verdict_class(verdict: object) -> str:
     """CSS class of a verdict chip, from the words the analysis uses (anything unknown stays neutral)."""
-    v = str(verdict).lower()
+    v = str(verdict).strip().lower()
+    if v in VERDICT_CLASS:
+        return VERDICT_CLASS[v]
     if any(w in v for w in ("fail", "diverg", "reject", "not ", "insufficient", "none")):
         return "bad"
     if any(w in v for w in ("caution", "warn", "oscillat", "review", "weak", "outside")):

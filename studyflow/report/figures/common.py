@@ -57,3 +57,19 @@ def levels_count(results: pd.DataFrame | None) -> int:
     if results is None or results.empty or "level" not in results:
         return 1
     return int(pd.to_numeric(results["level"], errors="coerce").max()) + 1
+
+
+def figure_legend(fig: Figure, axes: list, ncols: int = 4) -> None:
+    """One legend for the whole figure, below the panels, with each label once.
+
+    Cheaper than a legend per panel placed by 'best' (which tests every position against every
+    data point) and it keeps the panels themselves free of clutter.
+    """
+    seen: dict[str, object] = {}
+    for ax in axes:
+        for handle, text in zip(*ax.get_legend_handles_labels()):
+            if text and not text.startswith("_") and text not in seen:
+                seen[text] = handle
+    if seen:
+        fig.legend(list(seen.values()), list(seen.keys()), loc="outside lower center",
+                   ncols=min(ncols, len(seen)), fontsize=7.5)

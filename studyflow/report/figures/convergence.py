@@ -8,7 +8,7 @@ import pandas as pd
 from matplotlib.figure import Figure
 
 from .. import style
-from .common import fmt, label, levels_count, new_figure, size_axis
+from .common import figure_legend, fmt, label, levels_count, new_figure, size_axis
 
 
 def _unc_row(unc: pd.DataFrame | None, point: str) -> pd.Series | None:
@@ -39,7 +39,7 @@ def value_vs_size(results: pd.DataFrame, uncertainty: pd.DataFrame | None, quant
         ax.plot(x, y, color=style.INK, lw=1.0, zorder=2)
         for xi, yi, lev in zip(x, y, rows["level"].astype(int)):
             ax.plot([xi], [yi], "o", color=style.level_colour(lev, nlev), zorder=3,
-                    markeredgecolor=style.INK, markeredgewidth=0.5)
+                    markeredgecolor=style.INK, markeredgewidth=0.5, label=f"level {lev}")
         u = _unc_row(uncertainty, point)
         if u is not None:
             ext = float(u.get("extrapolated", np.nan))
@@ -49,19 +49,22 @@ def value_vs_size(results: pd.DataFrame, uncertainty: pd.DataFrame | None, quant
             left = 0.0 if xname == "h" else float(np.nanmin(x)) * 0.9
             if np.isfinite(fine) and np.isfinite(big_u):
                 ax.fill_between([left, right], fine - big_u, fine + big_u, color=style.BAND, alpha=0.55,
-                                lw=0, zorder=1, label=f"value_fine ± U ({fmt(big_u, 3)})")
+                                lw=0, zorder=1, label="finest-mesh value ± U")
             if np.isfinite(ext):
                 ax.axhline(ext, color=style.ACCENT, ls="--", lw=1.0, zorder=1)
                 if xname == "h":
                     ax.plot([0.0], [ext], marker="*", ms=10, color=style.ACCENT, zorder=4,
-                            label=f"extrapolated {fmt(ext)}")
+                            label="extrapolated (h = 0)")
+            ax.text(0.98, 0.04, f"p = {fmt(u.get('order'), 3)}   ext = {fmt(ext)}   U = {fmt(big_u, 3)}",
+                    transform=ax.transAxes, ha="right", va="bottom", fontsize=7, color=style.INK,
+                    bbox={"boxstyle": "square,pad=0.25", "fc": "white", "ec": style.RULE, "lw": 0.5})
             if xname == "h":
                 ax.set_xlim(left=0.0)
             if xname == "cells":
                 ax.set_xscale("log")
-            ax.legend(loc="best")
         elif xname == "cells":
             ax.set_xscale("log")
+    figure_legend(fig, axes)
     return fig
 
 
@@ -107,7 +110,7 @@ def error_vs_size(results: pd.DataFrame, uncertainty: pd.DataFrame | None, quant
         ax.plot(xs, anchor[1] * (xs / anchor[0]) ** formal_order, color=style.ACCENT, ls=":", lw=1.6,
                 label=f"slope {fmt(formal_order, 3)} (formal order)")
     if drawn:
-        ax.legend(loc="best")
+        ax.legend(loc="upper left")
     else:
         ax.text(0.5, 0.5, "no extrapolated value to compare with", transform=ax.transAxes, ha="center",
                 color=style.PENDING)

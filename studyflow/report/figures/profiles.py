@@ -10,7 +10,7 @@ from matplotlib.figure import Figure
 from ...errors import InputError, Problem
 from .. import style
 from ..settings import Reference
-from .common import label, levels_count, new_figure
+from .common import figure_legend, label, levels_count, new_figure
 
 
 def load_reference(ref: Reference, study_file: str) -> pd.DataFrame:
@@ -61,5 +61,5 @@ def profile_panels(results: pd.DataFrame, uncertainty: pd.DataFrame | None, quan
         if reference is not None and len(reference) and reference_point in (None, str(point)):
             ax.plot(reference["x"], reference["y"], "s", color=style.GOOD, ms=3.5, mfc="none",
                     label=reference_label)
-        ax.legend(loc="best")
+    figure_legend(fig, axes)
     return fig

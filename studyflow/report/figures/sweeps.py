@@ -8,7 +8,7 @@ import pandas as pd
 from matplotlib.figure import Figure
 
 from .. import style
-from .common import fmt, label, levels_count, new_figure
+from .common import figure_legend, fmt, label, levels_count, new_figure
 
 MAX_PANELS = 6
 
@@ -92,5 +92,5 @@ def quantity_vs_parameter(results: pd.DataFrame, uncertainty: pd.DataFrame | Non
         xs = pd.to_numeric(sel[param], errors="coerce").dropna()
         if len(xs) and xs.min() > 0 and xs.max() / xs.min() > 100:
             ax.set_xscale("log")  # parameters spanning decades (Reynolds numbers) read better on log axes
-        ax.legend(loc="best")
+    figure_legend(fig, axes)
     return fig
