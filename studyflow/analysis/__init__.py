@@ -24,9 +24,7 @@ from .table import COLUMNS, Settings, assess, profile_summary
 from .text import CAUTIONS, uncertainty_text
 
 
-
-
-def __getattr__(name: str):  # noqa: ANN202
+def __getattr__(name: str):
     # The study-level entry point imports the collection layer (slow: field readers); only load it
     # when asked for, so the numerical functions stay quick to import.
     if name in ("assess_study", "StudyAssessment"):

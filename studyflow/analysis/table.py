@@ -214,7 +214,7 @@ def assess(
     good = good.assign(noise=_noise(good, histories, monitors, residuals))
     good = good.sort_values(["gid", "h"], kind="stable")
     n_groups = len(groups)
-    nan = lambda: np.full(n_groups, np.nan)  # noqa: E731
+    nan = lambda: np.full(n_groups, np.nan)
     out = {c: nan() for c in ("h_fine", "value_fine", "order", "extrapolated", "e_a", "e_ext", "gci_fine",
                               "gci_medium", "asymptotic_ratio", "R", "U", "iterative_error", "tiny", "sigma",
                               "data_range")}
@@ -279,7 +279,7 @@ def assess(
         tolerance=s.order_tolerance,
     )
     ok = iterative_negligible(out["iterative_error"], out["U"], s.negligible)
-    flag = ok == False  # noqa: E712 (object array of True/False/None)
+    flag = ok == False
     reason = vd.append(reason, flag, [f"iterative error {e:.3g} is not below {100 * s.negligible:.0f} % of U"
                                       for e in out["iterative_error"][flag]])
     reason = vd.append(reason, _fine_not_converged(good, groups), "the finest case is not iteratively converged")
@@ -326,7 +326,7 @@ def _fine_not_converged(good: pd.DataFrame, groups: pd.DataFrame) -> np.ndarray:
         return np.zeros(len(groups), dtype=bool)
     finest = good.sort_values(["gid", "h"], kind="stable").drop_duplicates("gid")
     conv = finest.set_index("gid")["converged"].reindex(groups.index)
-    return (conv.astype("boolean") == False).fillna(False).to_numpy(bool)  # noqa: E712
+    return (conv.astype("boolean") == False).fillna(False).to_numpy(bool)
 
 
 def parameter_columns(results: pd.DataFrame) -> list[str]:

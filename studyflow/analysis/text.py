@@ -37,7 +37,7 @@ def _pct(u: object, v: object) -> str:
 
 def _grid(headers: list[str], rows: list[list[str]]) -> list[str]:
     widths = [max([len(h)] + [len(r[i]) for r in rows]) for i, h in enumerate(headers)]
-    line = lambda cells: "  ".join(c.ljust(w) for c, w in zip(cells, widths)).rstrip()  # noqa: E731
+    line = lambda cells: "  ".join(c.ljust(w) for c, w in zip(cells, widths)).rstrip()
     return [line(headers), line(["-" * w for w in widths])] + [line(r) for r in rows]
 
 
@@ -69,7 +69,7 @@ def uncertainty_text(unc: pd.DataFrame, max_rows: int = 60) -> str:
     counts = unc["verdict"].value_counts()
     out.append("")
     out.append("verdicts: " + ", ".join(f"{n} {v}" for v, n in counts.items()))
-    flagged = int((unc["iterative_ok"] == False).sum())  # noqa: E712
+    flagged = int((unc["iterative_ok"] == False).sum())
     if flagged:
         out.append(f"{flagged} rows: iterative error not negligible beside U (see the reason column)")
     out.append("")

@@ -82,8 +82,8 @@ def judge(
     texts = [
         lambda i: problem[i],
         lambda i: [f"every difference between levels is within the noise threshold {t:.3g}" for t in tiny[i]],
-        lambda i: [f"two levels: GCI with the formal order {pf_s} and Fs = 3; refine once more to observe "
-                   "the order"] * len(i),
+        lambda i: [(f"two levels: GCI with the formal order {pf_s} and Fs = 3; refine once more to observe "
+                   "the order")] * len(i),
         lambda i: [f"a difference between levels is within the noise threshold {t:.3g}; U = 3 x the spread "
                    "of the values" for t in tiny[i]],
         lambda i: [f"least-squares scatter sigma = {a:.3g} is not below the data range {b:.3g}; "

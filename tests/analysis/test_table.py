@@ -14,9 +14,9 @@ H = [0.4, 0.2, 0.1, 0.05]  # coarsest (level 0) to finest
 
 
 def _row(point, level, h, quantity, value, *, kind="scalar", coord=np.nan, status="done", converged=True, Re=1e4):
-    return dict(study="s", case=f"{point}--m{level}", point=point, level=level, Re=Re, cells=(1 / h) ** 2, h=h,
-                quantity=quantity, kind=kind, coord=coord, value=value, unit="-", status=status,
-                converged=converged, reason="")
+    return {"study": "s", "case": f"{point}--m{level}", "point": point, "level": level, "Re": Re, "cells": (1 / h) ** 2, "h": h,
+                "quantity": quantity, "kind": kind, "coord": coord, "value": value, "unit": "-", "status": status,
+                "converged": converged, "reason": ""}
 
 
 def _table(levels=(0, 1, 2), law=lambda h: 1.0 + 0.5 * h**2):
@@ -149,10 +149,10 @@ def test_iterative_error_from_histories_is_flagged_beside_U():
         for it in range(1, 201):
             # p1: converged history; p2: still oscillating by 1e-3, well above 1 % of its U.
             wobble = 0.0 if point == "p1" else 1e-3 * np.sin(it)
-            hist.append(dict(study="s", case=case, point=point, level=int(lev), quantity="drag", iteration=it,
-                             value=1.0 + wobble + 0.1 * np.exp(-it / 5.0)))
-            hist.append(dict(study="s", case=case, point=point, level=int(lev), quantity="res", iteration=it,
-                             value=np.exp(-it / 10.0)))
+            hist.append({"study": "s", "case": case, "point": point, "level": int(lev), "quantity": "drag", "iteration": it,
+                             "value": 1.0 + wobble + 0.1 * np.exp(-it / 5.0)})
+            hist.append({"study": "s", "case": case, "point": point, "level": int(lev), "quantity": "res", "iteration": it,
+                             "value": np.exp(-it / 10.0)})
     unc = assess(t, pd.DataFrame(hist), 2.0, residuals=["res"])
     drag = unc[unc["quantity"] == "drag"].set_index("point")
     assert bool(drag.loc["p1", "iterative_ok"]) is True
@@ -185,3 +185,12 @@ def test_vectorised_table_equals_group_by_group():
             a, b = whole.loc[g, col], one[col]
             assert (np.isnan(a) and np.isnan(b)) or a == pytest.approx(b, rel=1e-12), (g, col)
         assert whole.loc[g, "verdict"] == one["verdict"]
+
+
+def test_row_order_of_the_table_does_not_matter():
+    t = _table(levels=(0, 1, 2, 3), law=lambda h: 1.0 + 0.2 * h**1.7)
+    a = assess(t, None, 2.0)
+    b = assess(t.sample(frac=1.0, random_state=3), None, 2.0)
+    key = ["point", "quantity", "coord"]
+    a, b = a.sort_values(key).reset_index(drop=True), b.sort_values(key).reset_index(drop=True)
+    pd.testing.assert_frame_equal(a, b, check_exact=False, rtol=1e-12)
