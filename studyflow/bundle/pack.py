@@ -91,30 +91,53 @@ def _solver_commands(layout: StudyLayout) -> list[str]:
 
 
 def _run_history(layout: StudyLayout) -> tuple[list[Any], dict[str, str]]:
-    """Command lines from the study's run log and the span of case run dates."""
+    """The command lines used and the span of run dates.
+
+    Command lines: every distinct argument list each step ran with (from the rendered step
+    records, with how many cases used it), and the study's run records under ``.studyflow/``
+    (``run.json`` and any JSON-lines run log), keeping any ``argv``/``command`` they hold.
+    """
     commands: list[Any] = []
-    state = layout.study_dir / ".studyflow"
-    for log in sorted(state.glob("*")) if state.is_dir() else []:
-        if not log.is_file() or not ("log" in log.name or log.suffix == ".jsonl"):
-            continue
+    per_step: dict[tuple[str, tuple[str, ...]], int] = {}
+    for rec in sorted(layout.study_dir.glob("cases/*/.studyflow/*.step.json")):
         try:
-            lines = log.read_text(encoding="utf-8", errors="replace").splitlines()
+            doc = json.loads(rec.read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            continue
+        if isinstance(doc, dict) and isinstance(doc.get("argv"), list):
+            key = (str(doc.get("step")), tuple(str(a) for a in doc["argv"]))
+            per_step[key] = per_step.get(key, 0) + 1
+    by_step: dict[str, list[tuple[tuple[str, ...], int]]] = {}
+    for (step, argv), n in per_step.items():
+        by_step.setdefault(step, []).append((argv, n))
+    for step, uses in sorted(by_step.items()):
+        uses.sort(key=lambda u: (-u[1], u[0]))
+        for argv, n in uses[:20]:
+            commands.append({"source": "step", "step": step, "argv": list(argv), "cases": n})
+        if len(uses) > 20:
+            commands.append({"source": "step", "step": step, "more_distinct_argv": len(uses) - 20})
+    state = layout.study_dir / ".studyflow"
+    for rec in sorted(state.glob("*.json")) + sorted(state.glob("*.jsonl")) if state.is_dir() else []:
+        try:
+            lines = rec.read_text(encoding="utf-8", errors="replace").splitlines()
         except OSError:
             continue
-        for line in lines[-500:]:
-            line = line.strip()
-            if not line:
-                continue
+        docs = []
+        if rec.suffix == ".json":
             try:
-                obj = json.loads(line)
+                docs = [json.loads("\n".join(lines))]
             except ValueError:
-                obj = None
-            if isinstance(obj, dict):
-                cmd = obj.get("argv") or obj.get("command") or obj.get("cmd")
-                if cmd:
-                    commands.append({"at": obj.get("time") or obj.get("started") or obj.get("at"), "command": cmd})
-            elif "studyflow" in line:
-                commands.append({"at": None, "command": line})
+                docs = []
+        else:
+            for line in lines[-500:]:
+                try:
+                    docs.append(json.loads(line))
+                except ValueError:
+                    continue
+        for d in docs:
+            if isinstance(d, dict):
+                commands.append({"source": rec.name, **{k: d[k] for k in sorted(d)
+                                                        if isinstance(d[k], (str, int, float, bool, list))}})
     starts, ends = [], []
     for rec in layout.study_dir.glob("cases/*/.studyflow/*.status.json"):
         try:

@@ -255,10 +255,34 @@ def _run_case(case_dir: Path, steps: list[str], timeout_s: float | None) -> str 
     return None
 
 
+ENGINES = ("workflow", "direct")
+
+
+def _run_with_workflow(study: Any, cases: list[str], jobs: int) -> dict[str, str | None]:
+    """Run exactly ``cases`` through the workflow engine (Snakemake), as ``studyflow run`` would."""
+    from ..workflow.driver import EngineOptions, run_engine
+    from ..workflow.state import DONE, case_state
+
+    if cases:
+        run_engine(study, cases, EngineOptions(cores=jobs, progress=False))
+    steps = study.step_names()
+    out: dict[str, str | None] = {}
+    for c in cases:
+        state = case_state(study.cases_dir / c, steps)
+        out[c] = None if state.status == DONE else (state.reason or state.status)
+    return out
+
+
 def rerun(root: Path, manifest: Manifest, scratch: Path, cases: list[str], settings: AuditSettings | None,
-          jobs: int = 1, timeout_s: float | None = None) -> RerunOutcome:
+          jobs: int = 1, timeout_s: float | None = None, engine: str = "workflow") -> RerunOutcome:
     """Re-run ``cases`` from a fresh render in ``scratch`` and compare every collected quantity
-    with the shipped results table, within the study's audit tolerances."""
+    with the shipped results table, within the study's audit tolerances.
+
+    ``engine="workflow"`` runs them through the workflow engine like ``studyflow run``;
+    ``"direct"`` runs each case's steps in turn with the same step runner, without the engine
+    (quicker for a handful of cases)."""
+    if engine not in ENGINES:
+        raise AuditError(f"re-run engine {engine!r} is not one of {', '.join(ENGINES)}")
     from concurrent.futures import ThreadPoolExecutor
 
     from ..collect import collect_study
@@ -279,8 +303,11 @@ def rerun(root: Path, manifest: Manifest, scratch: Path, cases: list[str], setti
     render_study(study, design)
     out = RerunOutcome(cases=list(cases), scratch=str(scratch))
     steps = study.step_names()
-    with ThreadPoolExecutor(max_workers=max(1, jobs)) as pool:
-        reasons = dict(zip(cases, pool.map(lambda c: _run_case(study.cases_dir / c, steps, timeout_s), cases)))
+    if engine == "workflow":
+        reasons = _run_with_workflow(study, cases, max(1, jobs))
+    else:
+        with ThreadPoolExecutor(max_workers=max(1, jobs)) as pool:
+            reasons = dict(zip(cases, pool.map(lambda c: _run_case(study.cases_dir / c, steps, timeout_s), cases)))
 
     # programs shipped with the study (a path, not a name on PATH) are asked for their version here
     shipped_env = {}

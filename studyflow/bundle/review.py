@@ -158,7 +158,8 @@ def _environment(root: Path, shipped_env: dict[str, Any], report: AuditReport) -
 
 
 def audit(source: str | Path, *, into: str | Path | None = None, rerun: RerunChoice = RerunChoice(),
-          scratch: str | Path | None = None, keep_scratch: bool = False, jobs: int = 1) -> AuditReport:
+          scratch: str | Path | None = None, keep_scratch: bool = False, jobs: int = 1,
+          engine: str = "workflow") -> AuditReport:
     """Audit a bundle archive (unpacked safely into ``into``) or an unpacked bundle folder.
 
     Raises ``UnsafePathError`` when the archive is refused (nothing is written then) and
@@ -224,7 +225,8 @@ def audit(source: str | Path, *, into: str | Path | None = None, rerun: RerunCho
         if rerun.mode != "none":
             try:
                 chosen = rerun.pick(case_ids)
-                outcome = replay.rerun(root, manifest, work / "rerun", chosen, settings, jobs=jobs)
+                outcome = replay.rerun(root, manifest, work / "rerun", chosen, settings, jobs=jobs,
+                                       engine=engine)
                 ph.ran, ph.ok = True, outcome.ok
                 ph.detail.update(outcome.to_json())
                 for c in outcome.checks:

@@ -44,6 +44,9 @@ def register(subparsers: Any) -> None:
     a.add_argument("--seed", type=int, default=0, help="seed of --rerun-sample (default 0)")
     a.add_argument("--scratch", help="folder for re-rendering and re-running (default: temporary, removed after)")
     a.add_argument("--jobs", type=int, default=1, metavar="N", help="cases re-run at the same time (default 1)")
+    a.add_argument("--engine", choices=["workflow", "direct"], default="workflow",
+                   help="re-run through the workflow engine like 'run' (default), or 'direct': each case's "
+                        "steps in turn with the same step runner, quicker for a few cases")
     a.add_argument("--keep-scratch", action="store_true", help="keep the temporary scratch folder")
     a.add_argument("--json", action="store_true", help="print the full report as JSON")
     a.set_defaults(handler=run_audit)
@@ -72,7 +75,7 @@ def _choice(args: argparse.Namespace) -> RerunChoice:
 def run_audit(args: argparse.Namespace) -> int:
     try:
         report = audit(args.source, into=args.into, rerun=_choice(args), scratch=args.scratch,
-                       keep_scratch=args.keep_scratch, jobs=max(1, args.jobs))
+                       keep_scratch=args.keep_scratch, jobs=max(1, args.jobs), engine=args.engine)
     except UnsafePathError as exc:
         if not args.json:
             raise

@@ -94,26 +94,17 @@ def toy(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> Toy:
 
 
 def run_toy(toy: Toy) -> None:
-    """Render, run and collect the toy study with the project's own render, step runner and
-    collection (the functions every workflow job calls)."""
-    import subprocess
-    import sys
-
+    """Run, collect and assess the toy study with the project's own workflow (Snakemake driver),
+    collection and analysis, as ``studyflow run`` / ``collect`` / ``assess`` do."""
+    from studyflow.analysis import assess_study
     from studyflow.collect import collect_study, write_tables
-    from studyflow.design import build_design
-    from studyflow.render import render_study
     from studyflow.spec import load_study
+    from studyflow.workflow.run import options, run_study
 
     study = load_study(toy.study_file)
-    design = build_design(study)
-    render_study(study, design)
-    for case in design.cases:
-        for step in study.step_names():
-            subprocess.run([sys.executable, "-m", "studyflow.workflow.runstep", str(study.cases_dir / case.id), step],
-                           check=True)
+    outcome = run_study(study, options=options(cores=2, progress=False))
+    assert outcome.exit_code == 0, [(c.case, c.reason) for c in outcome.cases]
     write_tables(study.root, collect_study(study))
-    from studyflow.analysis import assess_study
-
     assess_study(study.file, write=True)
 
 

@@ -39,7 +39,8 @@ def test_shipped_study_really_ran(packed_toy) -> None:
 
 def test_round_trip_in_another_folder_is_clean(packed_toy, tmp_path: Path, monkeypatch) -> None:
     use_solver(monkeypatch, tmp_path / "bin", "1.0.0")
-    report = audit(packed_toy.archive, into=tmp_path / "elsewhere", rerun=RerunChoice("all"))
+    # the full re-run goes through the workflow engine, as the study's own run did
+    report = audit(packed_toy.archive, into=tmp_path / "elsewhere", rerun=RerunChoice("all"), jobs=2)
     assert report.ok and report.exit_code == EXIT_OK, report.failures
     assert not [n for n in report.notes if n["what"] == "solver version"]
     checks = report.phases["rerun"].detail["checks"]
@@ -70,8 +71,9 @@ def test_one_flipped_byte_is_named_and_fails(packed_toy, tmp_path: Path, monkeyp
 
 def test_sampled_rerun_is_reproducible_by_seed(packed_toy, tmp_path: Path, monkeypatch) -> None:
     use_solver(monkeypatch, tmp_path / "bin", "1.0.0")
-    a = audit(packed_toy.archive, into=tmp_path / "a", rerun=RerunChoice("sample", n=2, seed=7))
-    b = audit(tmp_path / "a", rerun=RerunChoice("sample", n=2, seed=7))
+    a = audit(packed_toy.archive, into=tmp_path / "a", rerun=RerunChoice("sample", n=2, seed=7),
+              engine="direct")
+    b = audit(tmp_path / "a", rerun=RerunChoice("sample", n=2, seed=7), engine="direct")
     assert a.ok and b.ok, (a.failures, b.failures)
     assert a.phases["rerun"].detail["cases"] == b.phases["rerun"].detail["cases"]
     assert len(a.phases["rerun"].detail["cases"]) == 2
@@ -80,7 +82,8 @@ def test_sampled_rerun_is_reproducible_by_seed(packed_toy, tmp_path: Path, monke
 
 def test_changed_solver_version_is_reported_as_such(packed_toy, tmp_path: Path, monkeypatch) -> None:
     use_solver(monkeypatch, tmp_path / "bin", "2.0.0")
-    report = audit(packed_toy.archive, into=tmp_path / "r", rerun=RerunChoice("cases", cases=("k1--m2",)))
+    report = audit(packed_toy.archive, into=tmp_path / "r", rerun=RerunChoice("cases", cases=("k1--m2",)),
+                   engine="direct")
     notes = [n for n in report.notes if n["what"] == "solver version"]
     assert notes == [{"what": "solver version", "name": "toysolve", "packed": "1.0.0", "now": "2.0.0",
                       "error_now": None}]
@@ -92,7 +95,8 @@ def test_changed_solver_version_is_reported_as_such(packed_toy, tmp_path: Path, 
 def test_new_release_with_other_numbers_fails_outside_tolerance(packed_toy, tmp_path: Path, monkeypatch) -> None:
     # 1e-6 relative change against the study's declared rtol of 1e-9 for drag
     use_solver(monkeypatch, tmp_path / "bin", "2.1.0", scale="1.000001")
-    report = audit(packed_toy.archive, into=tmp_path / "r", rerun=RerunChoice("cases", cases=("k2.5--m0",)))
+    report = audit(packed_toy.archive, into=tmp_path / "r", rerun=RerunChoice("cases", cases=("k2.5--m0",)),
+                   engine="direct")
     assert report.exit_code == EXIT_AUDIT_FAILED
     bad = [c for c in report.phases["rerun"].detail["checks"] if not c["ok"]]
     assert [(c["case"], c["quantity"]) for c in bad] == [("k2.5--m0", "drag")]
