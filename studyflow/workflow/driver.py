@@ -1,0 +1,259 @@
+"""Drive Snakemake for one run of a study.
+
+Snakemake runs as a child process through its command line, not through its Python API:
+* process isolation: the engine's threads, logging set-up and ``sys.exit`` calls stay out of the
+  caller (a notebook, the CLI), and a crash of the engine cannot take studyflow down with it;
+* clean interruption: the child leads its own process group, so one SIGINT to that group
+  reaches Snakemake, every step runner and every solver together, and a SIGKILL of the group
+  after a grace period leaves nothing running (SIGTERM can hang Snakemake at large job counts);
+* a stable interface: the command-line options change far less between Snakemake releases than
+  its Python API did between 7, 8 and 9.
+
+Options chosen for large studies (measured on a 2-core machine, see issue 2 and
+benchmarks/bench_dispatch.py): ``--scheduler greedy --scheduler-subsample 100`` and a high
+``--max-jobs-per-timespan`` keep scheduling linear in the number of jobs; explicit targets (only
+the cases the plan says must run) avoid an aggregating rule with N inputs, which is quadratic;
+``--nolock`` because studyflow's own run lock replaces Snakemake's (which survives a SIGKILL and
+then needs ``--unlock``); ``--rerun-triggers input --drop-metadata`` so that Snakemake runs
+exactly the steps whose done marker is missing: the plan removed the markers of stale steps.
+"""
+
+from __future__ import annotations
+
+import os
+import signal
+import sys
+import time
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Callable, Sequence
+
+from ..errors import WorkflowError
+from ..spec.model import Study
+from . import signature as sig
+from .rules_support import done_path, ensure_importable, group_components
+
+RULES = Path(__file__).resolve().parent / "rules" / "studyflow.smk"
+RUN_LOG = "run.log"
+RUN_INFO = "run.json"
+
+
+@dataclass
+class EngineOptions:
+    cores: int | None = None
+    keep_going: bool = True
+    retries: int | None = None
+    extra_args: Sequence[str] = ()
+    progress: bool = True
+    grace_s: float = 10.0
+    poll_s: float = 1.0
+    max_jobs_per_second: int = 100_000
+    config: Sequence[str] = ()  # extra KEY=VALUE entries for --config (cluster: step_runner=...)
+    # Called as after_engine(study, cases, log_path, started_at) once the engine stopped, before
+    # the cases' states are read (cluster runs attach the scheduler's reasons here).
+    after_engine: Callable[[Study, Sequence[str], Path, float], object] | None = None
+
+
+@dataclass
+class EngineResult:
+    returncode: int
+    interrupted: bool
+    elapsed_s: float
+    log: Path
+    targets: int
+    done: int = 0
+    failed: int = 0
+
+
+def default_cores() -> int:
+    return max(1, len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1))
+
+
+def snakemake_argv(study: Study, targets: Sequence[str], opts: EngineOptions) -> list[str]:
+    cores = opts.cores or default_cores()
+    config = [f"study={study.file}", "driver=1"]
+    if opts.retries is not None:
+        config.append(f"retries={int(opts.retries)}")
+    config += list(opts.config)
+    argv = [sys.executable, "-m", "snakemake", *targets,
+            "--config", *config,
+            "--snakefile", str(RULES), "--directory", str(study.root),
+            "--cores", str(cores),
+            "--nolock", "--rerun-incomplete",
+            "--rerun-triggers", "input", "--drop-metadata",
+            "--scheduler", "greedy", "--scheduler-subsample", "100",
+            "--max-jobs-per-timespan", f"{opts.max_jobs_per_second}/1s",
+            "--latency-wait", "5",
+            "--quiet", "progress", "host",
+            *group_components(study)]
+    if opts.keep_going:
+        argv.append("--keep-going")
+    argv += list(opts.extra_args)
+    return argv
+
+
+class Progress:
+    """Counts finished and failed cases among the targets from their files, cheaply enough to
+    poll every second at 10,000 cases (only cases still pending are looked at)."""
+
+    def __init__(self, study: Study, cases: Sequence[str]):
+        self.last = study.steps[-1].name
+        self.steps = study.step_names()
+        self.cases_dir = study.cases_dir
+        self.pending = set(cases)
+        self.total = len(cases)
+        self.done = 0
+        self.failed: dict[str, str] = {}
+        self._seen: dict[str, tuple[int, dict]] = {}
+
+    def _status(self, path: str) -> dict:
+        try:
+            mtime = os.stat(path).st_mtime_ns
+        except OSError:
+            return {}
+        cached = self._seen.get(path)
+        if cached is None or cached[0] != mtime:
+            cached = self._seen[path] = (mtime, sig.read_json(path) or {})
+        return cached[1]
+
+    def poll(self) -> None:
+        finished = []
+        for case in self.pending:
+            d = str(self.cases_dir / case)
+            if os.path.exists(sig.marker_path(d, self.last)):
+                finished.append(case)
+                self.done += 1
+                self.failed.pop(case, None)
+                continue
+            for step in self.steps:
+                if os.path.exists(sig.marker_path(d, step)):
+                    continue
+                st = self._status(sig.status_path(d, step))
+                if st.get("state") == "failed":
+                    self.failed[case] = f"{step}: {st.get('reason')}"
+                else:
+                    self.failed.pop(case, None)  # not run yet, or a retry is under way
+                break
+        self.pending.difference_update(finished)
+
+    def line(self, elapsed: float) -> str:
+        finished = self.done + len(self.failed)
+        left = ""
+        if 0 < finished < self.total and elapsed > 0:
+            left = f", ~{_hms(elapsed / finished * (self.total - finished))} left"
+        return (f"studyflow: {self.done}/{self.total} cases done, {len(self.failed)} failed, "
+                f"{_hms(elapsed)} elapsed{left}")
+
+
+def _hms(seconds: float) -> str:
+    s = int(round(seconds))
+    return f"{s // 3600}:{s % 3600 // 60:02d}:{s % 60:02d}"
+
+
+def _killpg(pgid: int, signo: int) -> None:
+    try:
+        os.killpg(pgid, signo)
+    except (ProcessLookupError, PermissionError):
+        pass
+
+
+def run_engine(study: Study, cases: Sequence[str], opts: EngineOptions,
+               report: Callable[[str, bool], None] | None = None,
+               inherit_fds: Sequence[int] = ()) -> EngineResult:
+    """Run the last step of each of ``cases`` (and whatever it needs) through Snakemake.
+
+    SIGINT (Ctrl-C) or SIGTERM to studyflow is forwarded as SIGINT to the engine's process
+    group; what is still running ``grace_s`` later is killed with SIGKILL. Finished cases keep
+    their done markers; interrupted steps have none and run again next time. ``inherit_fds``
+    (the run lock's descriptor) are passed to the engine, so the study stays locked while
+    Snakemake runs even if this process is killed.
+    """
+    import subprocess
+
+    ensure_importable()
+    last = study.steps[-1].name
+    targets = [done_path("", c, last) for c in cases]
+    state = study.state_dir
+    state.mkdir(parents=True, exist_ok=True)
+    log_path = state / RUN_LOG
+    argv = snakemake_argv(study, targets, opts)
+    started = time.time()
+    sig.write_json_atomic(str(state / RUN_INFO), {
+        "started_at": started, "pid": os.getpid(), "cores": opts.cores or default_cores(),
+        "cases": len(cases), "ended_at": None, "returncode": None, "interrupted": False})
+    progress = Progress(study, cases)
+    say = report or _stderr_reporter()
+    interrupted: list[float] = []
+
+    with open(log_path, "wb") as log:
+        try:
+            proc = subprocess.Popen(argv, cwd=str(study.root), stdout=log, stderr=subprocess.STDOUT,
+                                    stdin=subprocess.DEVNULL, start_new_session=True, pass_fds=tuple(inherit_fds))
+        except OSError as exc:
+            raise WorkflowError(f"cannot start Snakemake ({argv[0]} -m snakemake): {exc}") from None
+        pgid = proc.pid
+
+        def on_signal(signum, frame):  # noqa: ARG001
+            if not interrupted:
+                interrupted.append(time.time())
+                _killpg(pgid, signal.SIGINT)
+
+        previous = {}
+        for s in (signal.SIGINT, signal.SIGTERM):
+            try:
+                previous[s] = signal.signal(s, on_signal)
+            except ValueError:  # not the main thread: the caller handles signals
+                pass
+        try:
+            last_line = 0.0
+            while True:
+                try:
+                    proc.wait(timeout=opts.poll_s)
+                    break
+                except subprocess.TimeoutExpired:
+                    pass
+                if interrupted and time.time() - interrupted[0] > opts.grace_s:
+                    _killpg(pgid, signal.SIGKILL)
+                if opts.progress:
+                    now = time.time()
+                    progress.poll()
+                    if sys.stderr.isatty() or now - last_line >= 10.0:
+                        say(progress.line(now - started), False)
+                        last_line = now
+        finally:
+            for s, h in previous.items():
+                signal.signal(s, h)
+            # Nothing of this run may outlive it (orphaned step runners or solvers).
+            _killpg(pgid, signal.SIGKILL)
+    if opts.after_engine is not None:
+        opts.after_engine(study, cases, log_path, started)
+    elapsed = time.time() - started
+    progress.poll()
+    if opts.progress:
+        say(progress.line(elapsed), True)
+    info = sig.read_json(str(state / RUN_INFO)) or {}
+    info.update(ended_at=time.time(), returncode=proc.returncode, interrupted=bool(interrupted))
+    sig.write_json_atomic(str(state / RUN_INFO), info)
+    return EngineResult(proc.returncode, bool(interrupted), elapsed, log_path, len(cases),
+                        progress.done, len(progress.failed))
+
+
+def _stderr_reporter() -> Callable[[str, bool], None]:
+    tty = sys.stderr.isatty()
+
+    def say(text: str, final: bool) -> None:
+        if tty:
+            sys.stderr.write("\r" + text + ("\n" if final else "\x1b[K"))
+        else:
+            sys.stderr.write(text + "\n")
+        sys.stderr.flush()
+
+    return say
+
+
+def log_tail(path: Path, lines: int = 30) -> str:
+    try:
+        text = path.read_text(encoding="utf-8", errors="replace")
+    except OSError:
+        return ""
+    return "\n".join(text.splitlines()[-lines:])

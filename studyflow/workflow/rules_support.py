@@ -1,0 +1,162 @@
+"""What the packaged Snakemake rules ask of the library (``rules/studyflow.smk`` stays declarative).
+
+One rule per step, wildcard ``case``; its output is the step's done marker, its inputs the
+step's ``.step.json``, the reads that come from the template, and the upstream step's done marker
+(reads written by an earlier step are covered by that marker). The shell command calls the step
+runner with an argument list built here and quoted, never with study values pasted in.
+"""
+
+from __future__ import annotations
+
+import os
+import shlex
+import sys
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Callable
+
+from ..design.cases import Design, build_design
+from ..render.cases import STATE, render_study
+from ..spec.loader import load_study
+from ..spec.model import StepSpec, Study
+
+RULE_PREFIX = "sf_"
+BATCH_GROUP = "sf_batch"
+
+
+def rule_name(step: StepSpec | str) -> str:
+    """Snakemake rule name of a step (prefixed so no step name clashes with a Snakemake keyword)."""
+    return RULE_PREFIX + (step if isinstance(step, str) else step.name)
+
+
+def done_path(prefix: str, case: str, step: str) -> str:
+    return f"{prefix}cases/{case}/{STATE}/{step}.done"
+
+
+def group_for(study: Study, step: StepSpec) -> str | None:
+    """Hook for cluster batching: the Snakemake group of a step's jobs, or None for no group.
+
+    Every step of every case joins one group when ``cluster.batch`` is set; each case is then one
+    connected component of that group, and ``--group-components sf_batch=<batch>`` (see
+    ``group_components``) packs ``batch`` cases into one scheduler job. Snakemake ignores groups
+    in local runs. ``studyflow.cluster`` may refine this.
+    """
+    return BATCH_GROUP if study.cluster is not None and study.cluster.batch else None
+
+
+def group_components(study: Study) -> list[str]:
+    """Snakemake options that size the batches of ``group_for`` (empty when not batching)."""
+    if study.cluster is None or not study.cluster.batch:
+        return []
+    return ["--group-components", f"{BATCH_GROUP}={study.cluster.batch}"]
+
+
+def package_parent() -> str:
+    """The folder that holds the ``studyflow`` package (put on PYTHONPATH for the step runner)."""
+    return str(Path(__file__).resolve().parents[2])
+
+
+def ensure_importable() -> None:
+    parent = package_parent()
+    current = os.environ.get("PYTHONPATH", "")
+    if parent not in current.split(os.pathsep):
+        os.environ["PYTHONPATH"] = parent + (os.pathsep + current if current else "")
+
+
+@dataclass
+class RuleSet:
+    study: Study
+    prefix: str  # path from Snakemake's working directory to the study folder ("" or "studies/x/")
+    retries: int
+    all_targets: list[str] = field(default_factory=list)
+    design: Design | None = None
+    # The module each job runs; cluster batches use studyflow.cluster.batchstep (config step_runner).
+    runner: str = "studyflow.workflow.runstep"
+
+    @property
+    def steps(self) -> list[StepSpec]:
+        return list(self.study.steps)
+
+    def rule_name(self, step: StepSpec) -> str:
+        return rule_name(step)
+
+    def output(self, step: StepSpec) -> str:
+        return done_path(self.prefix, "{case}", step.name)
+
+    def inputs(self, step: StepSpec) -> Callable[[Any], list[str]]:
+        i = self.study.steps.index(step)
+        template_rels = self._template_rels()
+        prefix = self.prefix
+        previous = self.study.steps[i - 1].name if i else None
+        reads = [r for r in step.reads if r in template_rels]
+
+        def fn(wildcards: Any) -> list[str]:
+            base = f"{prefix}cases/{wildcards.case}/"
+            out = [f"{base}{STATE}/{step.name}.step.json"] + [base + r for r in reads]
+            if previous:
+                out.append(f"{base}{STATE}/{previous}.done")
+            return out
+
+        return fn
+
+    def _template_rels(self) -> set[str]:
+        root = self.study.template_dir
+        return {p.relative_to(root).as_posix() for p in root.rglob("*") if p.is_file()}
+
+    def threads(self, step: StepSpec) -> int:
+        return step.cores or self.study.resources.cores
+
+    def resources(self, step: StepSpec) -> dict[str, int]:
+        out: dict[str, int] = {}
+        mem = step.memory_mb or self.study.resources.memory_mb
+        if mem:
+            out["mem_mb"] = int(mem)
+        limit = self.study.time_limit_s(step)
+        if limit:
+            out["runtime"] = max(1, int(round(limit / 60.0)))
+        return out
+
+    def group(self, step: StepSpec) -> str | None:
+        return group_for(self.study, step)
+
+    @property
+    def shell_command(self) -> str:
+        """The one shell line of every rule. Snakemake fills ``{wildcards.case}`` and
+        ``{params.step}``; case ids are filesystem-safe ([A-Za-z0-9._-]) and step names are
+        identifiers, so with the quoted prefix each stays one argument."""
+        case_dir = shlex.quote(f"{self.prefix}cases/").replace("{", "{{").replace("}", "}}") + "{wildcards.case}"
+        python = shlex.quote(sys.executable).replace("{", "{{").replace("}", "}}")
+        return f"{python} -S -m {self.runner} {case_dir} {{params.step}}"
+
+
+def setup(config: dict[str, Any], workdir: str | None = None) -> RuleSet:
+    """Load the study named by ``config['study']``; render it unless the driver already did.
+
+    ``config['driver']`` set: the studyflow run command rendered the cases and passes explicit
+    targets, so neither rendering nor the list of all targets is needed (that keeps the parse
+    fast at 10,000 cases). Otherwise (``snakemake --config study=studies/NAME``) the study is
+    rendered here and rule ``all`` asks for every case's last step.
+    """
+    if "study" not in config:
+        raise SystemExit("studyflow: give the study with --config study=studies/NAME")
+    ensure_importable()
+    study = load_study(config["study"])
+    cwd = Path(workdir or os.getcwd()).resolve()
+    rel = os.path.relpath(study.root, cwd)
+    prefix = "" if rel == "." else rel.rstrip("/") + "/"
+    retries = int(config.get("retries", study.retries))
+    rs = RuleSet(study, prefix, retries)
+    runner = str(config.get("step_runner") or rs.runner)
+    if not runner.startswith("studyflow.") or not runner.replace(".", "").replace("_", "").isalnum():
+        raise SystemExit(f"studyflow: config step_runner must be a studyflow module (got {runner!r})")
+    rs.runner = runner
+    if not config.get("driver"):
+        design = build_design(study)
+        result = render_study(study, design)
+        if result.removed:
+            sys.stderr.write(f"studyflow: {len(result.removed)} case folder(s) no longer in the study, "
+                             f"kept: {', '.join(result.removed[:5])}{' ...' if len(result.removed) > 5 else ''}\n")
+        last = study.steps[-1].name
+        rs.all_targets = [done_path(prefix, c.id, last) for c in design.cases]
+        rs.design = design
+    return rs

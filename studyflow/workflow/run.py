@@ -1,0 +1,91 @@
+"""One run of a study: lock, render, plan, clear stale markers, drive the engine, read outcomes."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any, Callable, Sequence
+
+from ..design.cases import Design, build_design
+from ..errors import EXIT_CASES_FAILED, EXIT_INTERRUPTED, EXIT_OK, WorkflowError
+from ..render.cases import RenderResult, make_renderer, removed_cases, render_all, render_study
+from ..spec.model import Study
+from .driver import EngineOptions, EngineResult, log_tail, run_engine
+from .lock import RunLock
+from .plan import Plan, clear_stale_markers, compute_plan
+from .state import DONE, FAILED, CaseState, case_state
+
+
+@dataclass
+class RunOutcome:
+    plan: Plan
+    render: RenderResult | None
+    engine: EngineResult | None
+    cases: list[CaseState] = field(default_factory=list)  # the cases this run targeted
+    dry: bool = False
+    tables: Any = None  # the collected tables, when the caller collected after the run
+
+    @property
+    def failed(self) -> list[CaseState]:
+        return [c for c in self.cases if c.status == FAILED]
+
+    @property
+    def done(self) -> list[CaseState]:
+        return [c for c in self.cases if c.status == DONE]
+
+    @property
+    def interrupted(self) -> bool:
+        return bool(self.engine and self.engine.interrupted)
+
+    @property
+    def exit_code(self) -> int:
+        if self.interrupted:
+            return EXIT_INTERRUPTED
+        if self.failed or any(c.status != DONE for c in self.cases) and not self.dry:
+            return EXIT_CASES_FAILED
+        return EXIT_OK
+
+
+def plan_study(study: Study, design: Design | None = None, time_limit_s: float | None = None) -> Plan:
+    """What a run would do now; renders in memory only, writes nothing."""
+    design = design or build_design(study)
+    rendered = render_all(study, design, make_renderer(study, time_limit_s))
+    return compute_plan(study, rendered, removed_cases(study, design))
+
+
+def run_study(study: Study, design: Design | None = None, options: EngineOptions | None = None,
+              time_limit_s: float | None = None, dry: bool = False,
+              report: Callable[[str, bool], None] | None = None,
+              after: Callable[[RunOutcome], None] | None = None) -> RunOutcome:
+    """Render, plan and run every stale case; ``after`` (e.g. collection) runs under the lock.
+
+    Everything is rendered and checked in memory before the first file is written, so a bad
+    template leaves every case as it was. Only the plan's stale cases are passed to the engine.
+    """
+    options = options or EngineOptions()
+    design = design or build_design(study)
+    with RunLock(study.state_dir) as lock:
+        rendered = render_all(study, design, make_renderer(study, time_limit_s))
+        plan = compute_plan(study, rendered, removed_cases(study, design))
+        if dry:
+            return RunOutcome(plan, None, None, dry=True)
+        result = render_study(study, design, rendered=rendered)
+        clear_stale_markers(study, plan)
+        cases = plan.cases_to_run()
+        engine = None
+        if cases:
+            engine = run_engine(study, cases, options, report, inherit_fds=(lock.fd,) if lock.fd else ())
+        steps = study.step_names()
+        states = [case_state(study.cases_dir / c, steps) for c in cases]
+        outcome = RunOutcome(plan, result, engine, states)
+        if engine and engine.returncode != 0 and not engine.interrupted and not outcome.failed:
+            raise WorkflowError(f"Snakemake stopped with exit code {engine.returncode} before running the "
+                                f"cases; its log is {engine.log}:\n{log_tail(engine.log)}")
+        if after is not None:
+            after(outcome)
+        return outcome
+
+
+def options(cores: int | None = None, keep_going: bool = True, retries: int | None = None,
+            extra_args: Sequence[str] = (), progress: bool = True) -> EngineOptions:
+    return EngineOptions(cores=cores, keep_going=keep_going, retries=retries, extra_args=tuple(extra_args),
+                         progress=progress)

@@ -1,0 +1,217 @@
+"""Run one step of one case: ``python -m studyflow.workflow.runstep <case_dir> <step>``.
+
+This is what every Snakemake rule calls. It imports only the standard library (start-up time is
+paid once per job). It:
+
+1. removes the step's old done marker and writes ``.studyflow/<step>.status.json`` as running,
+   so an interrupted rerun can never look finished;
+2. checks the upstream step is done and hashes the files the step reads (its input signature);
+3. removes the step's declared outputs, so a stale output cannot pass for a new one;
+4. runs the argv of ``.studyflow/<step>.step.json`` (no shell) in the case folder, stdout and
+   stderr to ``logs/<step>.log``, under the step's wall-time limit;
+5. checks every declared output exists, writes the status (ok or failed with a reason) and, on
+   success only, the done marker holding the input signature (``signature.py``).
+
+It exits 0 on success and non-zero on failure, so Snakemake records the job failed and skips
+the case's later steps while the other cases go on.
+
+Status file (JSON)::
+
+    {"case": ID, "step": NAME, "state": "running" | "ok" | "failed", "reason": TEXT or null,
+     "exit_code": N or null, "wall_s": S or null, "started": ISO, "ended": ISO or null,
+     "started_at": EPOCH_S, "host": NAME, "pid": PID}
+
+Reasons: ``exit code N``, ``killed by signal NAME``, ``timed out after S s``, ``missing output X``,
+``missing input X``, ``upstream step X not done``, ``cannot start: ...``, ``interrupted``.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import signal
+import socket
+import subprocess
+import sys
+import time
+from datetime import datetime, timezone
+
+try:  # run as a module of the package
+    from . import signature as sig
+except ImportError:  # pragma: no cover - run as a plain file
+    import signature as sig  # type: ignore[no-redef]
+
+EXIT_FAILED = 1
+EXIT_INTERRUPTED = 130
+GRACE_S = 5.0
+
+
+def _now() -> str:
+    return datetime.now(timezone.utc).isoformat(timespec="seconds")
+
+
+def _descendants(pid: int) -> list[int]:
+    """Every live descendant of ``pid`` (Linux /proc); empty where /proc is unavailable."""
+    children: dict[int, list[int]] = {}
+    try:
+        entries = os.listdir("/proc")
+    except OSError:
+        return []
+    for entry in entries:
+        if not entry.isdigit():
+            continue
+        try:
+            with open(f"/proc/{entry}/stat", "rb") as fh:
+                stat = fh.read().decode("ascii", "replace")
+            ppid = int(stat.rsplit(")", 1)[1].split()[1])
+        except (OSError, ValueError, IndexError):
+            continue
+        children.setdefault(ppid, []).append(int(entry))
+    out, todo = [], [pid]
+    while todo:
+        for child in children.get(todo.pop(), []):
+            out.append(child)
+            todo.append(child)
+    return out
+
+
+def _kill_tree(proc: subprocess.Popen, sig_no: int) -> None:
+    # The solver shares our process group (so a signal to the run's group reaches it, and a
+    # SIGKILL of the whole group leaves no orphan); to stop it alone we signal its tree.
+    for pid in [proc.pid, *_descendants(proc.pid)]:
+        try:
+            os.kill(pid, sig_no)
+        except OSError:
+            pass
+
+
+class _Interrupted(Exception):
+    pass
+
+
+def run(case_dir: str, step: str) -> int:
+    case_dir = os.path.abspath(case_dir)
+    state_dir = os.path.join(case_dir, sig.STATE)
+    status_file = sig.status_path(case_dir, step)
+    marker = sig.marker_path(case_dir, step)
+    started_at = time.time()
+    status = {"case": os.path.basename(case_dir), "step": step, "state": "running", "reason": None,
+              "exit_code": None, "wall_s": None, "started": _now(), "ended": None,
+              "started_at": started_at, "host": socket.gethostname(), "pid": os.getpid()}
+
+    def finish(state: str, reason: str | None, code: int | None, rc: int) -> int:
+        status.update(state=state, reason=reason, exit_code=code, wall_s=round(time.time() - started_at, 3),
+                      ended=_now())
+        sig.write_json_atomic(status_file, status)
+        return rc
+
+    doc = sig.read_json(sig.step_json_path(case_dir, step))
+    if doc is None:
+        sys.stderr.write(f"studyflow: {sig.step_json_path(case_dir, step)} is missing or unreadable; "
+                         "render the study first\n")
+        return 2
+    os.makedirs(state_dir, exist_ok=True)
+    try:
+        os.unlink(marker)
+    except FileNotFoundError:
+        pass
+    sig.write_json_atomic(status_file, status)
+
+    upstream_sig = None
+    if doc.get("upstream"):
+        up = sig.read_json(sig.marker_path(case_dir, doc["upstream"]))
+        if up is None:
+            return finish("failed", f"upstream step {doc['upstream']} not done", None, EXIT_FAILED)
+        upstream_sig = up.get("signature")
+
+    reads: dict[str, dict] = {}
+    for rel in doc.get("reads", []):
+        path = os.path.join(case_dir, rel)
+        try:
+            st = os.stat(path)
+            reads[rel] = {"sha": sig.sha_file(path), "size": st.st_size, "mtime_ns": st.st_mtime_ns}
+        except OSError:
+            return finish("failed", f"missing input {rel}", None, EXIT_FAILED)
+
+    for rel in doc.get("writes", []):
+        if rel in reads:
+            continue
+        try:
+            os.unlink(os.path.join(case_dir, rel))
+        except (FileNotFoundError, IsADirectoryError):
+            pass
+
+    os.makedirs(os.path.join(case_dir, "logs"), exist_ok=True)
+    limit = doc.get("time_limit_s")
+    interrupted: list[int] = []
+
+    def on_signal(signum, frame):  # noqa: ARG001
+        interrupted.append(signum)
+        raise _Interrupted()
+
+    argv = [str(a) for a in doc.get("argv", [])]
+    with open(os.path.join(case_dir, "logs", f"{step}.log"), "wb") as log:
+        try:
+            proc = subprocess.Popen(argv, cwd=case_dir, stdout=log, stderr=subprocess.STDOUT,
+                                    stdin=subprocess.DEVNULL)
+        except OSError as exc:
+            log.write(f"studyflow: cannot start {argv[:1]}: {exc}\n".encode())
+            return finish("failed", f"cannot start: {exc.strerror or exc}", None, EXIT_FAILED)
+        for s in (signal.SIGINT, signal.SIGTERM, signal.SIGHUP):
+            signal.signal(s, on_signal)
+        try:
+            try:
+                code = proc.wait(timeout=limit)
+            except subprocess.TimeoutExpired:
+                _kill_tree(proc, signal.SIGTERM)
+                try:
+                    proc.wait(timeout=GRACE_S)
+                except subprocess.TimeoutExpired:
+                    _kill_tree(proc, signal.SIGKILL)
+                    proc.wait()
+                return finish("failed", f"timed out after {limit:g} s", None, EXIT_FAILED)
+        except _Interrupted:
+            for s in (signal.SIGINT, signal.SIGTERM, signal.SIGHUP):
+                signal.signal(s, signal.SIG_IGN)
+            # A SIGINT to the group reached the solver too; a SIGTERM from Snakemake did not.
+            _kill_tree(proc, signal.SIGTERM if interrupted[0] != signal.SIGINT else signal.SIGINT)
+            try:
+                proc.wait(timeout=GRACE_S)
+            except subprocess.TimeoutExpired:
+                _kill_tree(proc, signal.SIGKILL)
+                proc.wait()
+            return finish("failed", "interrupted", None, EXIT_INTERRUPTED)
+
+    if code != 0:
+        reason = f"exit code {code}"
+        if code < 0:
+            try:
+                reason = f"killed by signal {signal.Signals(-code).name}"
+            except ValueError:
+                pass
+        return finish("failed", reason, code, EXIT_FAILED)
+    for rel in doc.get("writes", []):
+        if not os.path.exists(os.path.join(case_dir, rel)):
+            return finish("failed", f"missing output {rel}", 0, EXIT_FAILED)
+
+    case_doc = sig.read_json(os.path.join(state_dir, "case.json")) or {}
+    shas = {rel: r["sha"] for rel, r in reads.items()}
+    command = sig.command_hash(doc)
+    done = {"signature": sig.signature(command, shas, upstream_sig), "command": command,
+            "upstream": upstream_sig, "params": sig.params_hash(case_doc), "mesh": sig.mesh_hash(case_doc),
+            "reads": reads, "finished": _now()}
+    rc = finish("ok", None, 0, 0)
+    sig.write_json_atomic(marker, done)
+    return rc
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = sys.argv[1:] if argv is None else argv
+    if len(args) != 2:
+        sys.stderr.write("usage: python -m studyflow.workflow.runstep CASE_DIR STEP\n")
+        return 2
+    return run(args[0], args[1])
+
+
+if __name__ == "__main__":
+    sys.exit(main())
