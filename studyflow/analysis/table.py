@@ -68,8 +68,9 @@ def prepare(results: pd.DataFrame, *, dim: int | None = None, measure: float = 1
 
     Checks (each becomes a Problem naming the source, the column and row, and the value):
     missing mesh size, non-positive size, non-finite value, duplicate level within a group,
-    fewer than two levels. ``strict`` raises one AnalysisError with all of them; otherwise the
-    bad rows are dropped and affected groups carry the reason.
+    fewer than two levels. ``strict`` raises one AnalysisError with all of them; otherwise bad
+    rows are dropped (the group is still assessed on the rest, with a note), groups with a
+    duplicate level or fewer than two levels are kept as "cannot assess" rows with the reason.
     """
     missing = [c for c in ("point", "quantity", "value") if c not in results.columns]
     if "h" not in results.columns and "cells" not in results.columns:
@@ -103,7 +104,6 @@ def prepare(results: pd.DataFrame, *, dim: int | None = None, measure: float = 1
     raw_size = np.where(size_col == "h", df["h"], df["cells"] if "cells" in df.columns else np.nan)
 
     problems: list[Problem] = []
-    bad_row = np.zeros(len(df), dtype=bool)
     bad_size = ~(np.isfinite(h) & (h > 0))
     bad_val = ~np.isfinite(df["value"].to_numpy())
     label = _row_label(df) if (bad_size | bad_val).any() else None
@@ -118,38 +118,43 @@ def prepare(results: pd.DataFrame, *, dim: int | None = None, measure: float = 1
     df["gid"] = df.groupby(keys, dropna=False, sort=True).ngroup()
     groups = df.groupby("gid", sort=True).agg(point=("point", "first"), quantity=("quantity", "first"),
                                              coord=("coord", "first"))
-    groups["problem"] = ""
+    groups["problem"] = ""  # why a group cannot be assessed
+    groups["note"] = ""  # what was left out of a group that is still assessed
 
-    def note(gids: np.ndarray, text: np.ndarray | str) -> None:
-        cur = groups.loc[gids, "problem"].to_numpy(dtype=object)
-        add = np.broadcast_to(np.asarray(text, dtype=object), cur.shape)
-        groups.loc[gids, "problem"] = np.where(cur == "", add, cur + "; " + add)
+    def add(column: str, gids: np.ndarray, text: str) -> None:
+        cur = groups.loc[gids, column].to_numpy(dtype=object)
+        groups.loc[gids, column] = np.where(cur == "", text, cur + "; " + text)
 
     if bad_row.any():
-        note(np.unique(df["gid"].to_numpy()[bad_row]), "rows with a bad size or value were left out")
+        add("note", np.unique(df["gid"].to_numpy()[bad_row]), "rows with a bad size or value were left out")
     good = df[~bad_row]
     level_key = "level" if "level" in good.columns else "h"
     dup = good.duplicated(["gid", level_key], keep=False) | good.duplicated(["gid", "h"], keep=False)
     if dup.any():
         d = good[dup]
+        labels = _row_label(d)
         for i in range(len(d)):
-            problems.append(Problem(source, f"{level_key}, {_row_label(d).iat[i]}", d[level_key].iat[i].item()
-                                    if hasattr(d[level_key].iat[i], "item") else d[level_key].iat[i],
+            problems.append(Problem(source, f"{level_key}, {labels.iat[i]}", _py(d[level_key].iat[i]),
                                     f"duplicate level for point {d['point'].iat[i]!r}, quantity {d['quantity'].iat[i]!r}"))
-        note(np.unique(d["gid"].to_numpy()), "duplicate levels")
+        add("problem", np.unique(d["gid"].to_numpy()), "two rows for the same mesh level")
         good = good[~good["gid"].isin(d["gid"])]
     counts = good.groupby("gid").size().reindex(groups.index, fill_value=0)
-    few = counts.index[counts.to_numpy() < 2].to_numpy()
     groups["levels"] = counts.to_numpy()
+    few = counts.index[(counts.to_numpy() < 2) & (groups["problem"] == "").to_numpy()].to_numpy()
     for g in few:
+        hint = "" if np.isnan(groups.at[g, "coord"]) else " (a profile's stations must be the same on every mesh)"
         problems.append(Problem(source, f"point {groups.at[g, 'point']!r}, quantity {groups.at[g, 'quantity']!r}",
-                                int(counts.at[g]), "fewer than two usable mesh levels"))
-    note(few, "fewer than two usable mesh levels")
+                                int(counts.at[g]), "fewer than two usable mesh levels" + hint))
+        add("problem", np.array([g]), "fewer than two usable mesh levels" + hint)
     if strict and problems:
         raise _problems_frame_to_error(problems, source)
-    good = good[~good["gid"].isin(few)]
     good = good[~good["gid"].isin(groups.index[groups["problem"] != ""])]
     return good, groups, problems
+
+
+def _py(value: object) -> object:
+    """A numpy scalar as the plain Python value, so messages read 0.1 rather than np.float64(0.1)."""
+    return value.item() if isinstance(value, np.generic) else value
 
 
 def _noise(good: pd.DataFrame, histories: pd.DataFrame | None, monitors: Mapping[str, str] | None,
@@ -283,6 +288,8 @@ def assess(
     reason = vd.append(reason, flag, [f"iterative error {e:.3g} is not below {100 * s.negligible:.0f} % of U"
                                       for e in out["iterative_error"][flag]])
     reason = vd.append(reason, _fine_not_converged(good, groups), "the finest case is not iteratively converged")
+    notes = groups["note"].to_numpy(object)
+    reason = vd.append(reason, notes != "", list(notes[notes != ""]))
 
     table = pd.DataFrame({
         "point": groups["point"].to_numpy(), "quantity": groups["quantity"].to_numpy(),

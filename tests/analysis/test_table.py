@@ -194,3 +194,20 @@ def test_row_order_of_the_table_does_not_matter():
     key = ["point", "quantity", "coord"]
     a, b = a.sort_values(key).reset_index(drop=True), b.sort_values(key).reset_index(drop=True)
     pd.testing.assert_frame_equal(a, b, check_exact=False, rtol=1e-12)
+
+
+def test_a_bad_level_is_left_out_and_the_rest_still_assessed():
+    t = _table(levels=(0, 1, 2, 3))
+    t.loc[(t["point"] == "p1") & (t["quantity"] == "drag") & (t["level"] == 3), "value"] = np.nan
+    unc = assess(t, None, 2.0).set_index(["point", "quantity"])
+    row = unc.loc[("p1", "drag")]
+    assert row["levels"] == 3 and row["method"] == "three-level"
+    assert "rows with a bad size or value were left out" in row["reason"]
+
+
+def test_profile_stations_that_differ_between_meshes_are_explained():
+    t = _table()
+    t.loc[(t["kind"] == "profile") & (t["level"] == 0), "coord"] += 1e-3
+    unc = assess(t, None, 2.0)
+    bad = unc[(unc["quantity"] == "cf") & (unc["verdict"] == "cannot assess")]
+    assert len(bad) > 0 and bad["reason"].str.contains("stations must be the same").all()
