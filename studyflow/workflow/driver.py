@@ -116,17 +116,22 @@ class Progress:
             cached = self._seen[path] = (mtime, sig.read_json(path) or {})
         return cached[1]
 
+    def _done(self, case_dir: str, step: str) -> bool:
+        # A marker beside a failed status is a cluster batch's failure marker (see state.py).
+        return (os.path.exists(sig.marker_path(case_dir, step))
+                and self._status(sig.status_path(case_dir, step)).get("state") != "failed")
+
     def poll(self) -> None:
         finished = []
         for case in self.pending:
             d = str(self.cases_dir / case)
-            if os.path.exists(sig.marker_path(d, self.last)):
+            if self._done(d, self.last):
                 finished.append(case)
                 self.done += 1
                 self.failed.pop(case, None)
                 continue
             for step in self.steps:
-                if os.path.exists(sig.marker_path(d, step)):
+                if self._done(d, step):
                     continue
                 st = self._status(sig.status_path(d, step))
                 if st.get("state") == "failed":
