@@ -35,6 +35,9 @@ def register(sub: Any) -> None:
     r.add_argument("--dry", action="store_true", help="show the plan and stop")
     r.add_argument("--no-collect", action="store_true", help="do not collect the results after the run")
     r.add_argument("--quiet", action="store_true", help="no live progress line")
+    r.add_argument("--executor", choices=("local", "slurm"), default="local",
+                   help="where the steps run: this machine, or SLURM with the study's cluster: settings "
+                        "(docs/cluster.md)")
     r.set_defaults(handler=run_run)
 
     s = sub.add_parser("status", help="counts, failures with reasons, time per case and time left",
@@ -88,7 +91,8 @@ def run_run(args: argparse.Namespace) -> int:
 
     outcome = api.run(args.study, cores=args.cores, keep_going=not args.stop_on_failure, retries=args.retries,
                       timeout_s=args.timeout * 60.0 if args.timeout else None, dry=args.dry,
-                      extra_args=args.passthrough, progress=not args.quiet, collect=not args.no_collect)
+                      extra_args=args.passthrough, progress=not args.quiet, collect=not args.no_collect,
+                      executor=args.executor)
     if outcome.dry:
         print_plan(outcome.plan)
         return EXIT_OK
