@@ -25,6 +25,7 @@ from .workflow.plan import Plan
 from .workflow.run import RunOutcome, plan_study, run_study
 from .workflow.status import StudyStatus, study_status
 from .bundle import AuditReport, PackResult, RerunChoice, audit, pack  # noqa: F401  reviewer bundle (pack, audit)
+from .analysis.study import assess_study as assess  # noqa: F401  uncertainty table (analysis)
 
 StudyLike = Union[Study, str, os.PathLike]
 

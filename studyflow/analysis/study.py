@@ -11,7 +11,7 @@ import pandas as pd
 
 from ..collect import read_results
 from ..fsutil import atomic_write_bytes
-from ..spec import load_study
+from ..spec import Study, load_study
 from .iterative import residual_summary
 from .table import assess
 
@@ -45,9 +45,12 @@ def write_uncertainty(study_dir: str | os.PathLike, table: pd.DataFrame) -> tupl
     return paths
 
 
-def assess_study(path: str | os.PathLike, *, formal_order: float | None = None, write: bool = True) -> StudyAssessment:
-    """Assess the study at ``path`` (folder or study file) from its collected tables."""
-    study = load_study(path)
+def assess_study(study: Study | str | os.PathLike, *, formal_order: float | None = None,
+                 write: bool = True) -> StudyAssessment:
+    """Assess a study (loaded, or its folder or study file) from its collected tables; with
+    ``write`` the table goes to ``results/uncertainty.csv`` and ``.parquet``."""
+    if not isinstance(study, Study):
+        study = load_study(study)
     folder = study_dir_of(study.file)
     tables = read_results(folder)
     table = assess(tables.results, tables.histories, formal_order, study=study,
