@@ -11,13 +11,14 @@ from __future__ import annotations
 
 import json
 import math
+import os
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
+from functools import cached_property
 from pathlib import Path
 from typing import Any, Literal
 
-from ..errors import CollectError, Problem
-from ..fsutil import confined
+from ..errors import CollectError, Problem, UnsafePathError
 
 STATE_DIR = ".studyflow"
 CaseStatus = Literal["done", "failed", "pending"]
@@ -36,6 +37,11 @@ class StudyInfo:
     @property
     def cases_dir(self) -> Path:
         return self.root / "cases"
+
+    @cached_property
+    def cases_real(self) -> str:
+        """The cases folder with its links resolved, once per collection rather than once per file."""
+        return os.path.realpath(self.cases_dir)
 
     @property
     def results_dir(self) -> Path:
@@ -108,9 +114,21 @@ def case_from_mapping(data: Mapping[str, Any], mesh: Any = None, fallback_id: st
     return CaseInfo(case, point, None if level is None else int(level), dict(params), dict(sizes), h, cells)
 
 
+def inside(root_real: str, relative: str, what: str = "path") -> Path:
+    """``fsutil.confined`` for a root whose links are already resolved: the same refusals
+    (absolute paths, ``..`` and links that leave the root), without resolving the root again for
+    each of the tens of thousands of files a large study's collection opens."""
+    if os.path.isabs(relative):
+        raise UnsafePathError(f"{what} {relative!r} is absolute; it must stay inside {root_real}")
+    target = os.path.realpath(os.path.join(root_real, relative))
+    if target != root_real and not target.startswith(root_real.rstrip(os.sep) + os.sep):
+        raise UnsafePathError(f"{what} {relative!r} leaves {root_real}")
+    return Path(target)
+
+
 def case_dir(info: StudyInfo, case: str) -> Path:
-    """The case's folder, refused if the id would leave ``cases/``."""
-    return confined(info.cases_dir, case, what="case id")
+    """The case's folder, refused if the id (or a link) would leave ``cases/``."""
+    return inside(info.cases_real, case, what="case id")
 
 
 def read_case_json(info: StudyInfo, case: str) -> CaseInfo | None:

@@ -6,7 +6,7 @@ from collections.abc import Iterable, Mapping
 from typing import Any
 
 from ..errors import CollectError, Problem
-from .case import bind_study, collect_one
+from .case import bind_study, collect_one, settings_key
 from .caseinfo import CaseInfo, case_from_mapping, design_cases, read_case_json, study_info
 from .store import write_tables
 from .tables import ResultTables, build_tables, parameter_names
@@ -49,7 +49,8 @@ def collect_study(study: Any, cases: Iterable[str | CaseInfo | Mapping[str, Any]
     selected = _select(info, study, cases)
     params = parameter_names(selected)
     bound = bind_study(info, tuple(params))
-    records = [collect_one(info, bound, c, write=write_records, reuse=reuse) for c in selected]
+    settings = settings_key(info, bound)
+    records = [collect_one(info, bound, c, write=write_records, reuse=reuse, settings=settings) for c in selected]
     tables = build_tables(info.name, bound, records, params)
     if write:
         write_tables(info.root, tables)
