@@ -122,7 +122,10 @@ def compare(shipped: dict[str, Any], solvers_now: dict[str, SolverVersion]) -> l
         then = (shipped.get("solvers") or {}).get(command) or {}
         before = then.get("version") or then.get("output")
         after = now.version or now.output
-        if before != after:
+        if now.resolved is None:
+            notes.append({"what": "solver not found", "name": command, "packed": before, "now": None,
+                          "error_now": now.error})
+        elif before != after:
             notes.append({"what": "solver version", "name": command, "packed": before, "now": after,
                           "error_now": now.error})
     py_then = (shipped.get("python") or {}).get("version")

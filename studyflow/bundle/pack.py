@@ -44,10 +44,11 @@ class PackResult:
     bytes: int
     skipped: list[dict[str, str]] = field(default_factory=list)
     solvers: dict[str, Any] = field(default_factory=dict)
+    warnings: list[str] = field(default_factory=list)
 
     def to_json(self) -> dict[str, Any]:
         return {"archive": str(self.archive), "manifest_sha256": self.manifest_sha256, "files": self.files,
-                "bytes": self.bytes, "skipped": self.skipped, "solvers": self.solvers}
+                "bytes": self.bytes, "skipped": self.skipped, "solvers": self.solvers, "warnings": self.warnings}
 
 
 def _hash_file(path: Path) -> tuple[str, int]:
@@ -271,5 +272,12 @@ def pack(study: str | os.PathLike, archive: str | os.PathLike | None = None, *, 
         except FileNotFoundError:
             pass
         raise
+    roles = {e.role for e in entries}
+    warnings = []
+    if "results" not in roles:
+        warnings.append("no results table in the study: a reviewer can re-render but not compare a re-run; "
+                        "collect the study before packing")
+    if "uncertainty" not in roles:
+        warnings.append("no uncertainty table in the study: assess it before packing")
     return PackResult(out, sha256_bytes(manifest_bytes), len(entries), total, skipped,
-                      environment["solvers"])
+                      environment["solvers"], warnings)

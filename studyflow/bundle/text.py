@@ -24,6 +24,8 @@ def pack_text(result: PackResult) -> str:
     for command, info in sorted(result.solvers.items()):
         shown = info.get("version") or info.get("output") or info.get("error")
         lines.append(f"  solver {command}: {shown}")
+    for w in result.warnings:
+        lines.append(f"  warning: {w}")
     if result.skipped:
         lines.append(f"  left out: {len(result.skipped)}")
         for s in result.skipped[:20]:
@@ -37,6 +39,8 @@ def _note(n: dict[str, Any]) -> str:
     if n.get("what") in ("solver version", "python version", "package version"):
         extra = f" ({n['error_now']})" if n.get("error_now") else ""
         return f"{n['what']} changed: {n['name']} {n.get('packed')!s} when packed, {n.get('now')!s} now{extra}"
+    if n.get("what") == "solver not found":
+        return f"solver not found on this machine: {n['name']} ({n.get('packed')} when packed); a re-run cannot use it"
     return f"{n.get('what')}: {n.get('now')}"
 
 
@@ -50,6 +54,19 @@ def audit_text(report: AuditReport, limit: int = 40) -> str:
         out.append(f"files: {d['checked']} checked against the manifest; {len(d['missing'])} missing, "
                    f"{len(d['altered'])} altered, {len(d['unexpected'])} unexpected"
                    + (f", {len(d['unsafe'])} links or special files" if d["unsafe"] else ""))
+    e = ph.get("environment")
+    if e:
+        packed = e.detail.get("packed", {})
+        out.append(f"packed: {packed.get('packed')} with studyflow {packed.get('studyflow')}, Python "
+                   f"{packed.get('python')} on {packed.get('platform')}")
+        now = e.detail.get("now", {})
+        for command, then in sorted((packed.get("solvers") or {}).items()):
+            if command in now:
+                n = now[command]
+                shown = n.get("version") or n.get("output") or f"unknown ({n.get('error')})"
+                out.append(f"solver {command}: {then} when packed, {shown} here")
+            else:
+                out.append(f"solver {command}: {then} when packed (shipped with the study; checked by its hash)")
     r = ph.get("rerender")
     if r and r.ran:
         if r.error:

@@ -12,7 +12,7 @@ import json
 import sys
 from typing import Any
 
-from ..bundle import RerunChoice, audit, pack
+from ..bundle import RerunChoice, audit, pack  # the same functions studyflow.api re-exports
 from ..bundle.text import audit_text, pack_text
 from ..errors import EXIT_OK, UnsafePathError
 
