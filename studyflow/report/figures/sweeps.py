@@ -90,7 +90,7 @@ def quantity_vs_parameter(results: pd.DataFrame, uncertainty: pd.DataFrame | Non
             ax.plot(reference.iloc[:, 0], reference.iloc[:, 1], "-", color=style.GOOD, lw=1.4,
                     label=reference_label or "reference")
         xs = pd.to_numeric(sel[param], errors="coerce").dropna()
-        if len(xs) and xs.min() > 0 and xs.max() / xs.min() > 100:
+        if len(xs) and xs.min() > 0 and xs.max() / xs.min() >= 10:
             ax.set_xscale("log")  # parameters spanning decades (Reynolds numbers) read better on log axes
     figure_legend(fig, axes)
     return fig
