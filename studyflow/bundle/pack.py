@@ -26,6 +26,7 @@ import studyflow
 
 from ..errors import StudyflowError
 from ..fsutil import sha256_bytes
+from ..workflow.lock import RunLock
 from . import environment as env
 from .layout import PAYLOAD, Member, StudyLayout, locate, select
 from .tolerances import settings_from
@@ -207,6 +208,14 @@ def pack(study: str | os.PathLike, archive: str | os.PathLike | None = None, *, 
     # a bundle is only worth sending if its study file loads and its audit block is valid
     load_study(layout.study_file)
     settings_from(layout.raw.get("audit"), str(layout.study_file))
+    # no run may change the study while it is read: hold the study's run lock (StudyBusyError
+    # when a run is going)
+    with RunLock(layout.study_dir / ".studyflow"):
+        return _pack_locked(layout, archive, fields, compresslevel)
+
+
+def _pack_locked(layout: StudyLayout, archive: str | os.PathLike | None, fields: bool,
+                 compresslevel: int) -> PackResult:
     members, skipped = select(layout, fields=fields)
     out = Path(archive) if archive is not None else layout.study_dir.parent / default_archive_name(layout)
     out = out.resolve()
