@@ -26,6 +26,8 @@ from .workflow.run import RunOutcome, plan_study, run_study
 from .workflow.status import StudyStatus, study_status
 from .bundle import AuditReport, PackResult, RerunChoice, audit, pack  # noqa: F401  reviewer bundle (pack, audit)
 from .analysis.study import assess_study as assess  # noqa: F401  uncertainty table (analysis)
+from .report import build_report as report  # noqa: F401  HTML report, figures and tables (report)
+from .collect import collect_case, read_results, write_tables  # noqa: F401  one case's record, the tables (collect)
 
 StudyLike = Union[Study, str, os.PathLike]
 
