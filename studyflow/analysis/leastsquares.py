@@ -3,8 +3,9 @@
 After L. Eca and M. Hoekstra, "A procedure for the estimation of the numerical uncertainty of
 CFD calculations based on grid refinement studies", J. Comput. Phys. 262 (2014) 104-130.
 What is written here is recalled FROM MEMORY of that paper, not checked against it; details we
-are unsure of are marked in the docstrings. Only the unweighted fits are implemented (the paper
-also has weighted variants and picks the one with the smaller standard deviation).
+are unsure of are marked in the docstrings. The unweighted fits are the default; the weighted
+variants (the paper picks whichever of the two has the smaller standard deviation) are
+available with ``weighted=True``, their weights and standard deviation as we recall them.
 
 Arrays are ``(n_groups, n_levels)``; every level of a row must be a real level (no padding),
 so callers bucket groups by their number of levels.
@@ -12,6 +13,7 @@ so callers bucket groups by their number of levels.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -39,32 +41,49 @@ class Fit:
     fitted: NDArray[np.float64]
 
 
-def _linear_fit_one_power(x: NDArray, phi: NDArray) -> tuple[NDArray, NDArray, NDArray]:
-    """Closed-form least squares of phi = phi0 + alpha x per row; returns phi0, alpha, S (sum of squares)."""
-    xm = x.mean(axis=1, keepdims=True)
-    pm = phi.mean(axis=1, keepdims=True)
+def level_weights(h: NDArray, weighted: bool) -> NDArray:
+    """Weights per level: w_i = (1/h_i) / sum_j (1/h_j) when weighted (finer levels count more;
+    Eca & Hoekstra 2014, from memory), else w_i = 1/n_g. They sum to 1 in every row."""
+    w = 1.0 / h if weighted else np.ones_like(h)
+    return w / w.sum(axis=1, keepdims=True)
+
+
+def _sigma(s_weighted: NDArray, n_g: int, n_unknowns: int) -> NDArray:
+    """sigma = sqrt(n_g sum_i w_i r_i^2 / (n_g - m)); with w_i = 1/n_g this is sqrt(sum r_i^2 / (n_g - m))
+    (the weighted form is our reading of the paper, from memory; it reduces to the plain one)."""
+    return np.sqrt(n_g * s_weighted / (n_g - n_unknowns))
+
+
+def _linear_fit_one_power(x: NDArray, phi: NDArray, w: NDArray) -> tuple[NDArray, NDArray, NDArray]:
+    """Closed-form weighted least squares of phi = phi0 + alpha x per row (weights summing to 1);
+    returns phi0, alpha and S = sum_i w_i r_i^2."""
+    xm = np.sum(w * x, axis=1, keepdims=True)
+    pm = np.sum(w * phi, axis=1, keepdims=True)
     dx, dp = x - xm, phi - pm
-    sxx = np.sum(dx * dx, axis=1)
-    sxp = np.sum(dx * dp, axis=1)
+    sxx = np.sum(w * dx * dx, axis=1)
+    sxp = np.sum(w * dx * dp, axis=1)
     with np.errstate(divide="ignore", invalid="ignore"):
         alpha = np.where(sxx > 0, sxp / np.where(sxx > 0, sxx, 1.0), 0.0)
     phi0 = pm[:, 0] - alpha * xm[:, 0]
     resid = phi - phi0[:, None] - alpha[:, None] * x
-    return phi0, alpha, np.sum(resid * resid, axis=1)
+    return phi0, alpha, np.sum(w * resid * resid, axis=1)
 
 
-def fit_power_law(h: ArrayLike, phi: ArrayLike, p_min: float = P_MIN, p_max: float = P_MAX, n_grid: int = 160) -> Fit:
+def fit_power_law(h: ArrayLike, phi: ArrayLike, p_min: float = P_MIN, p_max: float = P_MAX, n_grid: int = 160,
+                  weighted: bool = False) -> Fit:
     """Fit phi_i = phi0 + alpha h_i^p (three unknowns) by least squares, all groups at once.
 
     Minimises S(phi0, alpha, p) = sum_i (phi_i - phi0 - alpha h_i^p)^2 (Eca & Hoekstra 2014, the
     unweighted form, from memory). For fixed p the problem is linear in (phi0, alpha) and solved
     in closed form; p is found by a grid search over [p_min, p_max] (log-spaced, one loop over
     candidate orders, vectorised over groups) followed by a golden-section refinement per group.
-    Standard deviation sigma = sqrt(S / (n_g - 3)) (from memory).
+    Standard deviation sigma = sqrt(S / (n_g - 3)) (from memory). ``weighted`` minimises
+    sum_i w_i r_i^2 with the weights of ``level_weights`` instead.
     h is scaled by each group's finest size first so that h^p stays well-conditioned.
     """
     o = sort_fine_first(h, phi)
     hs, ph = o.h / o.h[:, :1], o.phi
+    w = level_weights(o.h, weighted)
     n_g = hs.shape[1]
     if n_g < 4:
         raise ValueError(f"the least-squares fit needs at least four levels per group, got {n_g}")
@@ -73,7 +92,7 @@ def fit_power_law(h: ArrayLike, phi: ArrayLike, p_min: float = P_MIN, p_max: flo
     best_s = np.full(hs.shape[0], np.inf)
     best_k = np.zeros(hs.shape[0], dtype=np.intp)
     for k, p in enumerate(grid):
-        _, _, s = _linear_fit_one_power(np.exp(p * logh), ph)
+        _, _, s = _linear_fit_one_power(np.exp(p * logh), ph, w)
         better = s < best_s
         best_s = np.where(better, s, best_s)
         best_k = np.where(better, k, best_k)
@@ -81,7 +100,7 @@ def fit_power_law(h: ArrayLike, phi: ArrayLike, p_min: float = P_MIN, p_max: flo
     hi = np.log(grid[np.minimum(best_k + 1, n_grid - 1)])
 
     def cost(logp: NDArray) -> NDArray:
-        return _linear_fit_one_power(np.exp(np.exp(logp)[:, None] * logh), ph)[2]
+        return _linear_fit_one_power(np.exp(np.exp(logp)[:, None] * logh), ph, w)[2]
 
     g = 0.5 * (np.sqrt(5.0) - 1.0)
     a, b = hi - g * (hi - lo), lo + g * (hi - lo)
@@ -100,20 +119,21 @@ def fit_power_law(h: ArrayLike, phi: ArrayLike, p_min: float = P_MIN, p_max: flo
         a, b, fa, fb = a_new, b_new, fa_new, fb_new
     p = np.exp(0.5 * (lo + hi))
     x = np.exp(p[:, None] * logh)
-    phi0, alpha, s = _linear_fit_one_power(x, ph)
+    phi0, alpha, s = _linear_fit_one_power(x, ph, w)
     fitted = phi0[:, None] + alpha[:, None] * x
     # Undo the scaling of h: alpha (h/h1)^p = (alpha / h1^p) h^p.
     coef = (alpha / o.h[:, 0] ** p)[:, None]
-    sigma = np.sqrt(s / (n_g - 3))
+    sigma = _sigma(s, n_g, 3)
     return Fit(POWER, phi0, p, coef, sigma, np.take_along_axis(fitted, np.argsort(o.order, axis=1), 1))
 
 
-def fit_fixed_orders(h: ArrayLike, phi: ArrayLike, orders: tuple[float, ...]) -> Fit:
+def fit_fixed_orders(h: ArrayLike, phi: ArrayLike, orders: tuple[float, ...], weighted: bool = False) -> Fit:
     """Fit phi_i = phi0 + sum_k alpha_k h_i^(p_k) with fixed orders p_k, all groups at once.
 
     Eca & Hoekstra (2014) use, from memory: first order (p = 1), second order (p = 2) and the
     two-term first+second order expansion alpha1 h + alpha2 h^2. Solved by batched normal
-    equations on h scaled by the finest size. sigma = sqrt(S / (n_g - 1 - len(orders))).
+    equations on h scaled by the finest size. sigma = sqrt(S / (n_g - 1 - len(orders)));
+    ``weighted`` as in ``fit_power_law``.
     """
     o = sort_fine_first(h, phi)
     h1 = o.h[:, :1]
@@ -122,16 +142,17 @@ def fit_fixed_orders(h: ArrayLike, phi: ArrayLike, orders: tuple[float, ...]) ->
     m = 1 + len(orders)
     if n_g <= m:
         raise ValueError(f"a fit with {m} unknowns needs more than {m} levels, got {n_g}")
+    w = level_weights(o.h, weighted)
     design = np.stack([np.ones_like(hs)] + [hs**q for q in orders], axis=2)  # (G, L, m)
-    ata = np.einsum("glm,gln->gmn", design, design)
-    aty = np.einsum("glm,gl->gm", design, ph)
+    ata = np.einsum("glm,gl,gln->gmn", design, w, design)
+    aty = np.einsum("glm,gl,gl->gm", design, w, ph)
     beta = np.linalg.solve(ata, aty[..., None])[..., 0]
     fitted = np.einsum("glm,gm->gl", design, beta)
-    s = np.sum((ph - fitted) ** 2, axis=1)
+    s = np.sum(w * (ph - fitted) ** 2, axis=1)
     coef = beta[:, 1:] / np.stack([h1[:, 0] ** q for q in orders], axis=1)
     name = {(1.0,): FIRST, (2.0,): SECOND, (1.0, 2.0): FIRST_SECOND}.get(tuple(float(q) for q in orders), "fixed")
     order = np.full(ph.shape[0], float(orders[0]) if len(orders) == 1 else np.nan)
-    return Fit(name, beta[:, 0], order, coef, np.sqrt(s / (n_g - m)),
+    return Fit(name, beta[:, 0], order, coef, _sigma(s, n_g, m),
                np.take_along_axis(fitted, np.argsort(o.order, axis=1), 1))
 
 
@@ -155,8 +176,21 @@ class LeastSquares:
     good_fit: NDArray[np.bool_]
 
 
+def _smaller_sigma(a: Fit, b: Fit) -> Fit:
+    """Per group, whichever of two fits of the same form has the smaller standard deviation."""
+    take_b = b.sigma < a.sigma
+    pick = lambda x, y: np.where(take_b.reshape((-1,) + (1,) * (np.ndim(x) - 1)), y, x)
+    return Fit(a.name, pick(a.phi0, b.phi0), pick(a.order, b.order), pick(a.coef, b.coef),
+               pick(a.sigma, b.sigma), pick(a.fitted, b.fitted))
+
+
+def _fit_both(fit: Callable[..., Fit], *args: object, weighted: bool) -> Fit:
+    plain = fit(*args)
+    return _smaller_sigma(plain, fit(*args, weighted=True)) if weighted else plain
+
+
 def least_squares_uncertainty(
-    h: ArrayLike, phi: ArrayLike, p_low: float = P_LOW, p_high: float = P_HIGH
+    h: ArrayLike, phi: ArrayLike, p_low: float = P_LOW, p_high: float = P_HIGH, weighted: bool = False
 ) -> LeastSquares:
     """Uncertainty of the finest level by the least-squares procedure of Eca & Hoekstra (2014).
 
@@ -173,15 +207,18 @@ def least_squares_uncertainty(
        power-law fit was used in its band and Fs = 3 otherwise;
        else U = 3 sigma / Delta_phi (eps + sigma + |phi1 - phi_fit(h1)|).
     Groups whose data are all equal get U = 0 with the power fit reported.
+    ``weighted`` also makes every fit with the weights of ``level_weights`` and keeps, per group
+    and fit form, the one with the smaller standard deviation (as the paper does, from memory).
     """
     o = sort_fine_first(h, phi)
     hs, ph = o.h, o.phi
     n_g = hs.shape[1]
-    power = fit_power_law(hs, ph)
+    power = _fit_both(fit_power_law, hs, ph, weighted=weighted)
     p = power.order
-    candidates = [fit_fixed_orders(hs, ph, (1.0,)), fit_fixed_orders(hs, ph, (2.0,))]
+    candidates = [_fit_both(fit_fixed_orders, hs, ph, (1.0,), weighted=weighted),
+                  _fit_both(fit_fixed_orders, hs, ph, (2.0,), weighted=weighted)]
     if n_g > 3:
-        candidates.append(fit_fixed_orders(hs, ph, (1.0, 2.0)))
+        candidates.append(_fit_both(fit_fixed_orders, hs, ph, (1.0, 2.0), weighted=weighted))
     sig = np.stack([c.sigma for c in candidates], axis=1)  # (G, n_candidates)
     allowed_high = np.array([c.name in (SECOND, FIRST_SECOND) for c in candidates])
     best_high = np.argmin(np.where(allowed_high, sig, np.inf), axis=1)

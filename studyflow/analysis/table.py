@@ -19,7 +19,15 @@ from ..errors import AnalysisError, InputError, Problem
 from . import verdict as vd
 from .iterative import NEGLIGIBLE, iterative_negligible, monitor_error
 from .leastsquares import least_squares_uncertainty
-from .richardson import DEFAULT_RTOL, FS_THREE_LEVEL, FS_TWO_LEVEL, noise_threshold, three_level, two_level
+from .richardson import (
+    DEFAULT_RTOL,
+    FS_THREE_LEVEL,
+    FS_TWO_LEVEL,
+    asymptotic_ratio,
+    noise_threshold,
+    three_level,
+    two_level,
+)
 from .sizes import representative_size
 
 COLUMNS = [
@@ -48,6 +56,7 @@ class Settings:
     order_tolerance: float = vd.ORDER_TOLERANCE
     negligible: float = NEGLIGIBLE
     rtol: float = DEFAULT_RTOL
+    weighted: bool = False  # least squares: also try the weighted fits (Eca & Hoekstra 2014)
 
 
 def _problems_frame_to_error(problems: list[Problem], source: str) -> AnalysisError:
@@ -205,10 +214,13 @@ def assess(
     ``monitors`` maps a result quantity to its history quantity (default: same name).
     ``study`` (a loaded study file) supplies what is not given explicitly: ``analysis.formal_order``,
     ``analysis.safety_factor`` (the three-level Fs), optional ``analysis.coverage``,
-    ``analysis.order_tolerance`` and ``analysis.monitors``, ``iteration.residuals``, ``mesh.dim``
+    ``analysis.order_tolerance``, ``analysis.weighted`` and ``analysis.monitors``, ``iteration.residuals``, ``mesh.dim``
     and ``mesh.measure``.
     Output columns: ``COLUMNS`` plus the parameter columns of the results table.
     The convergence column is "unknown" for two levels (no class from one difference).
+    asymptotic_ratio is Roache's GCI23 / (r21^p GCI12) on the three finest levels; with three
+    levels p is observed on those same levels and the ratio is |phi1/phi2| identically (see
+    richardson.asymptotic_ratio), with four or more it uses the least-squares order.
     """
     s = settings or Settings()
     if study is not None:
@@ -261,12 +273,18 @@ def assess(
             out["convergence"][ix] = t3.convergence.kind
             out["method"][ix] = "three-level"
             if n >= 4:
-                ls = least_squares_uncertainty(h, phi)
+                ls = least_squares_uncertainty(h, phi, weighted=s.weighted)
                 out["method"][ix] = "least-squares"
                 out["order"][ix], out["extrapolated"][ix], out["U"][ix] = ls.order, ls.extrapolated, ls.U
                 with np.errstate(divide="ignore", invalid="ignore"):
                     out["e_ext"][ix] = np.abs((ls.extrapolated - phi[:, 0]) / ls.extrapolated)
                 out["sigma"][ix], out["data_range"][ix], out["good_fit"][ix] = ls.sigma, ls.data_range, ls.good_fit
+                # Roache's check on the three finest levels with the order of the fit over all levels:
+                # informative here, unlike with the order observed on those same three levels.
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    g21 = t3.e_a / np.expm1(ls.order * np.log(t3.r21))
+                    g32 = t3.e_a32 / np.expm1(ls.order * np.log(t3.r32))
+                out["asymptotic_ratio"][ix] = asymptotic_ratio(g21, g32, t3.r21, ls.order)
             else:
                 indet = t3.convergence.kind == "indeterminate"
                 out["U"][ix] = np.where(indet, 3.0 * spread, out["U"][ix])
@@ -307,7 +325,7 @@ def _from_study(study: Any, s: Settings, residuals: Sequence[str], monitors: Map
                 dim: int | None, measure: float) -> tuple:
     analysis = getattr(study, "analysis", None)
     extra = dict(getattr(analysis, "model_extra", None) or {})
-    changes: dict[str, float] = {}
+    changes: dict[str, Any] = {}
     if analysis is not None and analysis.formal_order is not None:
         changes["formal_order"] = float(analysis.formal_order)
     if analysis is not None and analysis.safety_factor is not None:
@@ -315,6 +333,8 @@ def _from_study(study: Any, s: Settings, residuals: Sequence[str], monitors: Map
     for key in ("coverage", "order_tolerance", "negligible"):
         if extra.get(key) is not None:
             changes[key] = float(extra[key])
+    if extra.get("weighted") is not None:
+        changes["weighted"] = bool(extra["weighted"])
     iteration = getattr(study, "iteration", None)
     if not residuals and iteration is not None:
         residuals = list(iteration.residuals)

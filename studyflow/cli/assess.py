@@ -44,6 +44,8 @@ def register(subparsers: Any) -> None:
     c.add_argument("--group", action="append", metavar="COLUMN",
                    help="group column (repeat; default: every column but size and value)")
     c.add_argument("--safety-factor", type=float, help="three-level safety factor Fs (default 1.25)")
+    c.add_argument("--weighted", action="store_true",
+                   help="four or more levels: also try weighted least-squares fits, keep the smaller scatter")
     c.add_argument("-o", "--output", help="write the uncertainty table here (.csv or .parquet)")
     c.add_argument("--rows", type=int, default=60, help="rows to print (default 60)")
     c.set_defaults(handler=run_assess_csv)
@@ -68,12 +70,16 @@ def run_assess_csv(args: argparse.Namespace) -> int:
     from ..analysis import Settings, assess, read_level_csv, uncertainty_text
     from ..fsutil import atomic_write_bytes
 
-    if args.measure is not None and not args.measure > 0:
+    if not args.measure > 0:
         raise InputError(Problem("command line", "--measure", args.measure, "must be positive"))
+    if not args.formal_order > 0:
+        raise InputError(Problem("command line", "--formal-order", args.formal_order, "must be positive"))
     rows = read_level_csv(args.file, value=args.value, size=args.size, groups=args.group)
-    settings = Settings(formal_order=args.formal_order)
+    if args.safety_factor is not None and not args.safety_factor > 0:
+        raise InputError(Problem("command line", "--safety-factor", args.safety_factor, "must be positive"))
+    settings = Settings(formal_order=args.formal_order, weighted=args.weighted)
     if args.safety_factor is not None:
-        settings = Settings(formal_order=args.formal_order, fs=args.safety_factor)
+        settings = Settings(formal_order=args.formal_order, fs=args.safety_factor, weighted=args.weighted)
     table = assess(rows, None, args.formal_order, dim=args.dim, measure=args.measure, settings=settings,
                    source=str(args.file), strict=True)
     print(uncertainty_text(table, max_rows=args.rows))

@@ -112,3 +112,29 @@ def test_vectorised_equals_row_by_row():
         one = least_squares_uncertainty(h[i : i + 1], phi[i : i + 1])
         assert one.U[0] == pytest.approx(all_at_once.U[i], rel=1e-12)
         assert one.fit[0] == all_at_once.fit[i]
+
+
+def test_weighted_fit_matches_scipy_with_sigma_weights():
+    # Reference: scipy.optimize.curve_fit with sigma_i = 1/sqrt(w_i) minimises sum w_i r_i^2.
+    rng = np.random.default_rng(9)
+    phi = 0.7 + 0.9 * H5**1.2 + rng.normal(0, 3e-4, H5.size)
+    w = (1 / H5) / np.sum(1 / H5)
+    ref, _ = curve_fit(lambda x, a, b, c: a + b * x**c, H5, phi, p0=[0.7, 0.9, 1.2], sigma=1 / np.sqrt(w))
+    fit = fit_power_law(H5[None], phi[None], weighted=True)
+    assert fit.phi0[0] == pytest.approx(ref[0], rel=1e-7)
+    assert fit.order[0] == pytest.approx(ref[2], rel=1e-5)
+    fixed = fit_fixed_orders(H5[None], phi[None], (1.0, 2.0), weighted=True)
+    a = np.column_stack([np.ones_like(H5), H5, H5**2]) * np.sqrt(w)[:, None]
+    beta, *_ = np.linalg.lstsq(a, phi * np.sqrt(w), rcond=None)  # reference: numpy weighted lstsq
+    assert fixed.phi0[0] == pytest.approx(beta[0], rel=1e-9)
+
+
+def test_weighted_option_never_raises_sigma():
+    rng = np.random.default_rng(13)
+    phi = 1.0 + 0.5 * H5**1.5 + rng.normal(0, 1e-3, (20, 5))
+    h = np.tile(H5, (20, 1))
+    plain = least_squares_uncertainty(h, phi)
+    both = least_squares_uncertainty(h, phi, weighted=True)
+    in_band = (plain.fit == POWER) & (both.fit == POWER)
+    assert np.all(both.sigma[in_band] <= plain.sigma[in_band] + 1e-15)
+    assert np.all(np.isfinite(both.U))
