@@ -1,0 +1,44 @@
+"""Small invented studies for the cluster tests (demo data only).
+
+The solver is a shell script: it writes ``y = 2 x`` for its parameter ``x``, so every collected
+value has an exact answer to check. A negative ``x`` makes it fail on purpose (exit code 3); an
+``x`` of 99 makes it cancel its own scheduler job, a failure only the scheduler can explain.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import yaml
+
+SCRIPT = """\
+# invented demo case, value {{ x }}
+if [ "{{ x }}" -eq 99 ]; then
+  echo "cancelling my own scheduler job $SLURM_JOB_ID"
+  scancel "$SLURM_JOB_ID"
+  sleep 60
+fi
+if [ "{{ x }}" -lt 0 ]; then echo "negative input {{ x }}" >&2; exit 3; fi
+echo "{\\"y\\": $(( {{ x }} * 2 ))}" > metrics.json
+"""
+
+
+def make_study(root: Path, values: list[int], cluster: dict | None,
+               resources: dict | None = None) -> Path:
+    """A study folder under ``root`` with one case per value of ``x``; returns the folder."""
+    (root / "template").mkdir(parents=True, exist_ok=True)
+    (root / "template" / "case.sh").write_text(SCRIPT)
+    study = root / "study"
+    study.mkdir(exist_ok=True)
+    doc = {
+        "title": "Cluster smoke study (invented)",
+        "template": "../template",
+        "parameters": [{"kind": "product", "values": {"x": values}}],
+        "steps": [{"name": "solve", "run": ["sh", "case.sh"], "reads": ["case.sh"], "writes": ["metrics.json"]}],
+        "quantities": {"y": {"from": "json", "file": "metrics.json", "key": "y"}},
+        "resources": resources or {"cores": 1, "memory_mb": 300, "time_min": 3},
+    }
+    if cluster is not None:
+        doc["cluster"] = cluster
+    (study / "study.yaml").write_text(yaml.safe_dump(doc, sort_keys=False))
+    return study

@@ -1,0 +1,122 @@
+"""Studies run on a real single-node SLURM cluster through snakemake-executor-plugin-slurm.
+
+What is checked comes from outside studyflow: the scheduler's own record of each submitted job
+(``scontrol show job``: CPUs, memory, time limit, partition), the job count sbatch accepted, the
+analytic answer ``y = 2 x`` of the demo solver, and the scheduler's state of a job that was
+cancelled. Every run is bounded by a hard time-out.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+import signal
+import subprocess
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+from cluster_studies import make_study
+from studyflow import api
+from studyflow.cluster.outcome import submitted_jobs
+
+pytestmark = pytest.mark.slurm
+
+RUN_TIMEOUT_S = 150
+
+
+class _Timeout(Exception):
+    pass
+
+
+def _run_bounded(study: Path, **kw):
+    """api.run under a hard alarm: a hung scheduler fails the test instead of hanging CI."""
+
+    def on_alarm(signum, frame):  # noqa: ARG001
+        raise _Timeout(f"cluster run of {study} took longer than {RUN_TIMEOUT_S} s")
+
+    old = signal.signal(signal.SIGALRM, on_alarm)
+    signal.alarm(RUN_TIMEOUT_S)
+    try:
+        return api.run(study, executor="slurm", progress=False, **kw)
+    finally:
+        signal.alarm(0)
+        signal.signal(signal.SIGALRM, old)
+
+
+def _job(job_id: str) -> dict[str, str]:
+    out = subprocess.run(["timeout", "-k", "2", "15", "scontrol", "show", "job", "-o", job_id],
+                         capture_output=True, text=True, check=True).stdout
+    return dict(tok.split("=", 1) for tok in out.split() if "=" in tok)
+
+
+def _mb(text: str) -> float:
+    m = re.match(r"^([\d.]+)([KMGT]?)", text)
+    assert m, text
+    return float(m.group(1)) * {"K": 1 / 1024, "": 1, "M": 1, "G": 1024, "T": 1024 ** 2}[m.group(2)]
+
+
+def test_batched_study_runs_through_sbatch_and_reports_the_failed_case(slurm_cluster, tmp_path):
+    values = [1, 2, 3, -4, 5, 6, 7]  # seven cases; x = -4 fails on purpose
+    study = make_study(tmp_path, values, {"batch": 3, "partition": "local", "first_check_s": 2})
+
+    outcome = _run_bounded(study)
+
+    by_case = {c.case: c for c in outcome.cases}
+    assert len(by_case) == 7
+    failed = [c for c in outcome.cases if c.status == "failed"]
+    assert [c.case for c in failed] == ["x-4--m0"]
+    assert failed[0].reason == "solve: exit code 3"
+    assert sum(c.status == "done" for c in outcome.cases) == 6  # the rest of its batch still ran
+
+    # Seven cases in batches of three: ceil(7 / 3) = 3 scheduler jobs, not seven.
+    log = (study / ".studyflow" / "run.log").read_text()
+    jobs = submitted_jobs(log)
+    assert len(jobs) == math.ceil(7 / 3)
+
+    # The scheduler's own record of each job: one case's cores, its memory, the batch's summed
+    # wall time (each step: 3 min limit + 10 % + 1 min start-up = 5 min), the study's partition.
+    for job_id, _ in jobs:
+        rec = _job(job_id)
+        assert rec["Partition"] == "local"
+        assert rec["NumCPUs"] == "1"
+        assert _mb(rec["MinMemoryNode"]) >= 300
+        minutes = sum(int(x) * f for x, f in zip(rec["TimeLimit"].split(":"), (60, 1, 1 / 60)))
+        assert minutes in (5, 10, 15), rec["TimeLimit"]  # 1, 2 or 3 cases of 5 min each
+        assert rec["JobState"] == "COMPLETED"  # a failed case does not fail its batch job
+
+    # Status and the results table tell the same story, case by case.
+    st = api.status(study)
+    assert {c.case: c.status for c in st.cases} == {c: by_case[c].status for c in by_case}
+    cases = pd.read_csv(study / "results" / "cases.csv")
+    row = cases.set_index("case").loc["x-4--m0"]
+    assert row["status"] == "failed" and "exit code 3" in row["reason"]
+    results = pd.read_csv(study / "results" / "results.csv")
+    ys = results[(results.quantity == "y") & (results.status == "done")].set_index("x")["value"]
+    for x in (1, 2, 3, 5, 6, 7):
+        assert ys.loc[x] == 2 * x  # the demo solver's exact answer
+
+    # The plan of a cluster run reads like a local one: only the failed case must run again.
+    plan = api.plan(study)
+    assert plan.cases_to_run() == ["x-4--m0"]
+    assert plan.case_reason("x-4--m0") == "solve: failed before (exit code 3)"
+    # No failure marker is left behind once the run is over.
+    assert not (study / "cases" / "x-4--m0" / ".studyflow" / "solve.done").exists()
+
+
+def test_cancelled_cluster_job_shows_the_scheduler_reason(slurm_cluster, tmp_path):
+    study = make_study(tmp_path, [1, 99], {"partition": "local", "first_check_s": 2})
+
+    outcome = _run_bounded(study)
+
+    by_case = {c.case: c for c in outcome.cases}
+    assert by_case["x1--m0"].status == "done"
+    bad = by_case["x99--m0"]
+    assert bad.status == "failed"
+    m = re.search(r"cluster job (\d+) CANCELLED", bad.reason)
+    assert m, bad.reason
+    assert _job(m.group(1))["JobState"] == "CANCELLED"  # the scheduler's own word
+    cases = pd.read_csv(study / "results" / "cases.csv").set_index("case")
+    assert f"cluster job {m.group(1)} CANCELLED" in cases.loc["x99--m0", "reason"]
+    assert api.status(study).failures[0].reason == bad.reason
