@@ -11,10 +11,10 @@ from __future__ import annotations
 import json
 import os
 from dataclasses import dataclass, field
-from pathlib import Path
+from pathlib import Path, PurePosixPath
 from typing import Any
 
-from ..errors import AuditError
+from ..errors import AuditError, UnsafePathError
 from ..fsutil import sha256_file
 
 MANIFEST_NAME = "MANIFEST.json"
@@ -69,6 +69,18 @@ class Manifest:
     def by_path(self) -> dict[str, FileEntry]:
         return {f.path: f for f in self.files}
 
+    def check_paths(self, source: str = MANIFEST_NAME) -> None:
+        """Refuse a manifest whose paths would lead outside the bundle (a crafted manifest must
+        not make the audit read or write elsewhere)."""
+        named = [("study_dir", self.study_dir), ("study_file", self.study_file)]
+        if self.template and self.template.get("stored") is not None:
+            named.append(("template.stored", str(self.template["stored"])))
+        named += [(f"files[{i}].path", f.path) for i, f in enumerate(self.files)]
+        for key, value in named:
+            p = PurePosixPath(value)
+            if not value or p.is_absolute() or ".." in p.parts or "\\" in value or "\x00" in value:
+                raise UnsafePathError(f"{source}: {key}: path {value!r} would lead outside the bundle")
+
     @classmethod
     def from_json(cls, data: Any, source: str = MANIFEST_NAME) -> "Manifest":
         if not isinstance(data, dict) or data.get("format") != FORMAT:
@@ -79,23 +91,29 @@ class Manifest:
                 f"{source}: format_version: this studyflow reads version {FORMAT_VERSION} (got {version!r})"
             )
         try:
-            files = [
-                FileEntry(str(f["path"]), str(f["sha256"]), int(f["size"]), str(f.get("role", "other")))
-                for f in data["files"]
-            ]
-            return cls(
-                study_name=str(data["study_name"]),
-                study_dir=str(data["study_dir"]),
-                study_file=str(data["study_file"]),
-                template=data.get("template"),
-                created=str(data.get("created", "")),
-                studyflow_version=str(data.get("studyflow_version", "")),
-                options=dict(data.get("options") or {}),
-                files=files,
-                skipped=list(data.get("skipped") or []),
-            )
+            manifest = cls._from_json(data)
         except (KeyError, TypeError, ValueError) as exc:
             raise AuditError(f"{source}: malformed manifest entry ({exc!r})") from exc
+        manifest.check_paths(source)
+        return manifest
+
+    @classmethod
+    def _from_json(cls, data: dict[str, Any]) -> "Manifest":
+        files = [
+            FileEntry(str(f["path"]), str(f["sha256"]), int(f["size"]), str(f.get("role", "other")))
+            for f in data["files"]
+        ]
+        return cls(
+            study_name=str(data["study_name"]),
+            study_dir=str(data["study_dir"]),
+            study_file=str(data["study_file"]),
+            template=data.get("template"),
+            created=str(data.get("created", "")),
+            studyflow_version=str(data.get("studyflow_version", "")),
+            options=dict(data.get("options") or {}),
+            files=files,
+            skipped=list(data.get("skipped") or []),
+        )
 
     @classmethod
     def load(cls, root: str | os.PathLike) -> "Manifest":

@@ -18,6 +18,7 @@ from typing import Any
 import yaml
 
 from ..errors import AuditError, StudyflowError
+from ..fsutil import confined
 from .manifest import Manifest
 from .tolerances import AuditSettings, settings_from
 
@@ -27,9 +28,10 @@ STATE = ".studyflow"
 
 
 def _study_paths(root: Path, manifest: Manifest) -> tuple[Path, Path]:
-    study_dir = root / manifest.study_dir
-    study_file = root / manifest.study_file
-    if not study_file.is_file():
+    # both must really lie in the bundle: an unpacked folder could have been given links
+    study_dir = confined(root, manifest.study_dir, "the manifest's study_dir")
+    study_file = confined(root, manifest.study_file, "the manifest's study_file")
+    if (root / manifest.study_file).is_symlink() or not study_file.is_file():
         raise AuditError(f"{manifest.study_file}: the bundle's study file is missing")
     return study_dir, study_file
 

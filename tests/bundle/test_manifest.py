@@ -62,3 +62,17 @@ def test_manifest_round_trip_and_bad_format(tmp_path: Path) -> None:
     (tmp_path / "MANIFEST.json").write_text(json.dumps({"format": "other"}))
     with pytest.raises(AuditError, match="not a studyflow bundle manifest"):
         Manifest.load(tmp_path)
+
+
+@pytest.mark.parametrize("key, value", [("study_dir", "../../etc"), ("study_file", "/etc/passwd"),
+                                        ("path", "payload/../../x")])
+def test_crafted_manifest_paths_are_refused(tmp_path: Path, key: str, value: str) -> None:
+    from studyflow.errors import UnsafePathError
+
+    data = json.loads(_manifest(tmp_path, {"a": b"x"}).dumps())
+    if key == "path":
+        data["files"][0]["path"] = value
+    else:
+        data[key] = value
+    with pytest.raises(UnsafePathError, match=repr(value).replace("/", "/").replace(".", r"\.")):
+        Manifest.from_json(data)
