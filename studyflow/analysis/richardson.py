@@ -118,8 +118,8 @@ def apparent_order(
     """Apparent (observed) order p from three levels, by fixed-point iteration.
 
     p = |ln|eps32/eps21| + q(p)| / ln r21,  q(p) = ln((r21^p - s)/(r32^p - s)),  s = sign(eps32/eps21)
-    (Celik et al. 2008, Eqs. (3a)-(3c)); with r21 = r32, q = 0 and p follows directly. The
-    iteration starts from q = 0. It is a contraction only when |q'(p)| < ln r21, which fails for
+    (Celik et al. 2008, Eqs. (3a)-(3c), numbering from memory); with r21 = r32, q = 0 and p
+    follows directly. The iteration starts from q = 0. It is a contraction only when |q'(p)| < ln r21, which fails for
     strongly unequal ratios (e.g. r21 = 1.1, r32 = 4); groups that have not converged after
     ``max_iter`` steps are solved instead by bisection in ln p on the same equation written as
     p ln r21 - q(p) = ln|eps32/eps21|, whose left side increases with p (our safeguard, not part
@@ -170,8 +170,8 @@ def _bisect_order(a: NDArray, l21: NDArray, l32: NDArray, s: NDArray, mask: NDAr
 
 
 def richardson_extrapolate(phi_fine: ArrayLike, phi_coarse: ArrayLike, r: ArrayLike, p: ArrayLike) -> NDArray[np.float64]:
-    """phi_ext = (r^p phi_fine - phi_coarse) / (r^p - 1)  (Celik et al. 2008, Eq. (4)),
-    evaluated as phi_fine + (phi_fine - phi_coarse) / (r^p - 1) with expm1 to keep precision."""
+    """phi_ext = (r^p phi_fine - phi_coarse) / (r^p - 1)  (Celik et al. 2008, Eq. (4), numbering
+    from memory), evaluated as phi_fine + (phi_fine - phi_coarse) / (r^p - 1) with expm1 to keep precision."""
     phi_fine, phi_coarse, r, p = map(_f, (phi_fine, phi_coarse, r, p))
     with np.errstate(divide="ignore", invalid="ignore"):
         return phi_fine + (phi_fine - phi_coarse) / np.expm1(p * np.log(r))
@@ -184,7 +184,8 @@ def _rel(num: NDArray, den: NDArray) -> NDArray:
 
 def gci_absolute(phi_fine: ArrayLike, phi_coarse: ArrayLike, r: ArrayLike, p: ArrayLike, fs: float) -> NDArray[np.float64]:
     """Absolute GCI, Fs |phi_coarse - phi_fine| / (r^p - 1): the relative GCI of Celik et al.
-    (2008), Eq. (5), times |phi_fine|, computed directly so it stays finite when phi_fine = 0."""
+    (2008), Eq. (5c) as we recall the numbering, times |phi_fine|, computed directly so it stays
+    finite when phi_fine = 0."""
     phi_fine, phi_coarse, r, p = map(_f, (phi_fine, phi_coarse, r, p))
     with np.errstate(divide="ignore", invalid="ignore"):
         return fs * np.abs(phi_coarse - phi_fine) / np.expm1(p * np.log(r))

@@ -108,7 +108,8 @@ def test_fixed_point_fallback_on_strongly_unequal_ratios():
 
 
 def test_equal_ratios_direct_formula():
-    # With r21 = r32 = r, q = 0 and p = ln(eps32/eps21)/ln r (Celik et al. 2008, Eq. 3a with q = 0).
+    # With r21 = r32 = r, q = 0 and p = ln(eps32/eps21)/ln r (Celik et al. 2008, Eq. 3a with q = 0;
+    # numbering from memory).
     phi = np.array([[1.01, 1.04, 1.16]])
     res = three_level(np.array([[1.0, 2.0, 4.0]]), phi)
     assert res.order[0] == pytest.approx(np.log(0.12 / 0.03) / np.log(2.0), rel=1e-13)
