@@ -32,9 +32,9 @@ def now_utc() -> str:
     fixes it so two packs of the same study give the same bytes."""
     epoch = os.environ.get("SOURCE_DATE_EPOCH")
     if epoch and epoch.isdigit():
-        moment = _dt.datetime.fromtimestamp(int(epoch), tz=_dt.timezone.utc)
+        moment = _dt.datetime.fromtimestamp(int(epoch), tz=_dt.UTC)
     else:
-        moment = _dt.datetime.now(tz=_dt.timezone.utc).replace(microsecond=0)
+        moment = _dt.datetime.now(tz=_dt.UTC).replace(microsecond=0)
     return moment.isoformat().replace("+00:00", "Z")
 
 

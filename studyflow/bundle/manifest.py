@@ -82,7 +82,7 @@ class Manifest:
                 raise UnsafePathError(f"{source}: {key}: path {value!r} would lead outside the bundle")
 
     @classmethod
-    def from_json(cls, data: Any, source: str = MANIFEST_NAME) -> "Manifest":
+    def from_json(cls, data: Any, source: str = MANIFEST_NAME) -> Manifest:
         if not isinstance(data, dict) or data.get("format") != FORMAT:
             raise AuditError(f"{source}: not a studyflow bundle manifest (key 'format' is not {FORMAT!r})")
         version = data.get("format_version")
@@ -98,7 +98,7 @@ class Manifest:
         return manifest
 
     @classmethod
-    def _from_json(cls, data: dict[str, Any]) -> "Manifest":
+    def _from_json(cls, data: dict[str, Any]) -> Manifest:
         files = [
             FileEntry(str(f["path"]), str(f["sha256"]), int(f["size"]), str(f.get("role", "other")))
             for f in data["files"]
@@ -116,7 +116,7 @@ class Manifest:
         )
 
     @classmethod
-    def load(cls, root: str | os.PathLike) -> "Manifest":
+    def load(cls, root: str | os.PathLike) -> Manifest:
         path = Path(root) / MANIFEST_NAME
         try:
             data = json.loads(path.read_text(encoding="utf-8"))

@@ -28,9 +28,9 @@ from ..errors import StudyflowError
 from ..fsutil import sha256_bytes
 from ..workflow.lock import RunLock
 from . import environment as env
-from .layout import PAYLOAD, Member, StudyLayout, locate, select
-from .tolerances import settings_from
+from .layout import PAYLOAD, StudyLayout, locate, select
 from .manifest import ENVIRONMENT_NAME, MANIFEST_NAME, FileEntry, Manifest
+from .tolerances import settings_from
 
 
 class PackError(StudyflowError):
@@ -82,11 +82,13 @@ def _solver_commands(layout: StudyLayout) -> list[str]:
         if not isinstance(first, str):
             continue
         if "{{" in first:
-            try:
-                import jinja2
+            import jinja2
+            from jinja2.sandbox import ImmutableSandboxedEnvironment
 
-                first = jinja2.Environment(undefined=jinja2.StrictUndefined).from_string(first).render(**constants)
-            except Exception:  # a name only the full case context defines: leave the command unprobed
+            try:
+                env_ = ImmutableSandboxedEnvironment(undefined=jinja2.StrictUndefined)
+                first = env_.from_string(first).render(**constants)
+            except jinja2.TemplateError:  # a name only a case defines: leave the command unprobed
                 continue
         found.add(first)
     return sorted(found)

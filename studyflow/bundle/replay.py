@@ -8,7 +8,6 @@ case folders, whose outputs are what the re-run is compared with).
 from __future__ import annotations
 
 import json
-import os
 import re
 import shutil
 from dataclasses import dataclass, field
@@ -17,7 +16,7 @@ from typing import Any
 
 import yaml
 
-from ..errors import AuditError, StudyflowError
+from ..errors import AuditError
 from ..fsutil import confined
 from .manifest import Manifest
 from .tolerances import AuditSettings, settings_from
@@ -51,7 +50,7 @@ def copy_inputs(root: Path, manifest: Manifest, scratch: Path) -> Path:
     its stored copy in the scratch study file (the only edit ever made to a study file)."""
     if scratch.exists() and any(scratch.iterdir()):
         raise AuditError(f"scratch folder {scratch} is not empty")
-    study_dir, study_file = _study_paths(root, manifest)
+    study_dir, _ = _study_paths(root, manifest)
     payload_root = root / "payload"
     for src in sorted(payload_root.rglob("*")):
         if src.is_symlink() or not src.is_file():
@@ -122,7 +121,7 @@ def rerender(root: Path, manifest: Manifest, scratch: Path) -> RerenderOutcome:
     from ..design import build_design
     from ..render import render_all
 
-    study_dir, study_file = _study_paths(root, manifest)
+    _, study_file = _study_paths(root, manifest)
     if (manifest.template or {}).get("absolute"):
         study_file = copy_inputs(root, manifest, scratch)
     out = RerenderOutcome(settings=audit_settings(study_file))
@@ -293,7 +292,7 @@ def rerun(root: Path, manifest: Manifest, scratch: Path, cases: list[str], setti
     from .compare import compare_histories, compare_results
 
     study_dir, _ = _study_paths(root, manifest)
-    shipped_results, shipped_path = _read_table(study_dir / "results", "results")
+    shipped_results, _ = _read_table(study_dir / "results", "results")
     if shipped_results is None:
         raise AuditError(f"{manifest.study_dir}/results: the bundle has no results table to compare a re-run with")
     shipped_hist, _ = _read_table(study_dir / "results", "histories")

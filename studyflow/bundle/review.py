@@ -140,7 +140,7 @@ def _integrity(root: Path, manifest: Manifest, report: AuditReport) -> None:
 def _environment(root: Path, shipped_env: dict[str, Any], report: AuditReport) -> None:
     ph = report.phases["environment"] = Phase("environment", ran=True)
     now: dict[str, env.SolverVersion] = {}
-    for command in sorted((shipped_env.get("solvers") or {})):
+    for command in sorted(shipped_env.get("solvers") or {}):
         if "/" in command:
             # a program shipped inside the case folders is checked by its hash, not run here
             continue

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from typing import Any
 
-from .review import CAUTION, AuditReport
 from .pack import PackResult
+from .review import CAUTION, AuditReport
 
 
 def _size(n: int) -> str:

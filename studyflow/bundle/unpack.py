@@ -84,7 +84,7 @@ def check_members(members: list[tarfile.TarInfo]) -> list[Refusal]:
                 refusals.append(Refusal(m.name, f"symbolic link to the absolute path {target!r}"))
                 continue
             resolved = posixpath.normpath(posixpath.join(posixpath.dirname(name), target))
-            if resolved == ".." or resolved.startswith("../") or resolved.startswith("/"):
+            if resolved == ".." or resolved.startswith(("../", "/")):
                 refusals.append(Refusal(m.name, f"symbolic link to {target!r} leads outside the target"))
                 continue
             links.add(name)

@@ -88,8 +88,7 @@ def test_pack_refuses_while_a_run_holds_the_study(toy, tmp_path: Path) -> None:
     from studyflow.workflow.lock import RunLock
 
     _render(toy)
-    with RunLock(toy.study_dir / ".studyflow"):
-        with pytest.raises(StudyBusyError) as info:
-            pack(toy.study_dir, tmp_path / "b.tar.gz")
+    with RunLock(toy.study_dir / ".studyflow"), pytest.raises(StudyBusyError) as info:
+        pack(toy.study_dir, tmp_path / "b.tar.gz")
     assert info.value.exit_code == EXIT_BUSY and not (tmp_path / "b.tar.gz").exists()
     assert pack(toy.study_dir, tmp_path / "b.tar.gz").archive.is_file()

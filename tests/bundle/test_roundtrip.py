@@ -13,13 +13,12 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from conftest import use_solver
 
 from studyflow.bundle import RerunChoice, audit, safe_extract
 from studyflow.bundle.text import audit_text
 from studyflow.bundle.tolerances import close
 from studyflow.errors import EXIT_AUDIT_FAILED, EXIT_OK
-
-from conftest import use_solver
 
 
 def flip_byte(path: Path, offset: int = 0) -> None:

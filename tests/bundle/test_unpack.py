@@ -15,8 +15,8 @@ from pathlib import Path
 
 import pytest
 
-from studyflow.errors import EXIT_UNSAFE, UnsafePathError
 from studyflow.bundle.unpack import check_members, safe_extract
+from studyflow.errors import EXIT_UNSAFE, UnsafePathError
 
 
 def _file(name: str, data: bytes = b"x") -> tuple[tarfile.TarInfo, bytes]:
