@@ -172,7 +172,7 @@ def test_profile_summary_average_order():
 def test_vectorised_table_equals_group_by_group():
     rng = np.random.default_rng(7)
     rows = []
-    for g in range(30):
+    for g in range(12):
         p, c = rng.uniform(0.6, 3.0), rng.uniform(-1, 1)
         for lev in range(int(rng.integers(2, 5))):
             h = H[lev]
