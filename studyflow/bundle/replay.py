@@ -259,6 +259,15 @@ def _run_case(case_dir: Path, steps: list[str], timeout_s: float | None) -> str 
 ENGINES = ("workflow", "direct")
 
 
+def shipped_cases_run(root: Path, manifest: Manifest) -> set[str]:
+    """Cases the shipped results table has as done or failed (pending ones have nothing to compare)."""
+    study_dir, _ = _study_paths(root, manifest)
+    table, _ = _read_table(study_dir / "results", "results")
+    if table is None or "status" not in table:
+        return set()
+    return set(table.loc[table["status"].astype(str) != "pending", "case"].astype(str))
+
+
 def _run_with_workflow(study: Any, cases: list[str], jobs: int) -> dict[str, str | None]:
     """Run exactly ``cases`` through the workflow engine (Snakemake), as ``studyflow run`` would."""
     from ..workflow.driver import EngineOptions, run_engine
@@ -328,12 +337,19 @@ def rerun(root: Path, manifest: Manifest, scratch: Path, cases: list[str], setti
 
     tables = collect_study(study, cases=cases, write=False)
     remade = tables.results
+    comparable = []
     for c in cases:
         shipped_status = set(shipped_results.loc[shipped_results["case"].astype(str) == c, "status"].astype(str))
+        if shipped_status <= {"pending"}:
+            out.notes.append({"what": "not compared", "name": c,
+                              "now": f"case {c} was not run in the shipped study; its re-run has nothing to "
+                                     f"be compared with ({'done' if reasons[c] is None else reasons[c]})"})
+            continue
+        comparable.append(c)
         if reasons[c] is not None and shipped_status != {"failed"}:
             out.failed_cases[c] = reasons[c]
-    out.checks = compare_results(shipped_results, remade, cases, settings)
+    out.checks = compare_results(shipped_results, remade, comparable, settings)
     if shipped_hist is not None and not shipped_hist.empty:
-        out.checks += compare_histories(shipped_hist, tables.histories, cases, settings)
+        out.checks += compare_histories(shipped_hist, tables.histories, comparable, settings)
     out.checks.sort(key=lambda c: (c.case, c.quantity, c.kind))
     return out

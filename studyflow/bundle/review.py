@@ -224,7 +224,9 @@ def audit(source: str | Path, *, into: str | Path | None = None, rerun: RerunCho
         ph = report.phases["rerun"] = Phase("rerun", detail={"how": rerun.describe()})
         if rerun.mode != "none":
             try:
-                chosen = rerun.pick(case_ids)
+                # "all" and samples draw from cases the shipped study ran; named cases are taken as asked
+                ran = replay.shipped_cases_run(root, manifest)
+                chosen = rerun.pick(case_ids if rerun.mode == "cases" else [c for c in case_ids if c in ran])
                 outcome = replay.rerun(root, manifest, work / "rerun", chosen, settings, jobs=jobs,
                                        engine=engine)
                 ph.ran, ph.ok = True, outcome.ok

@@ -19,6 +19,10 @@ from ..errors import AuditError, UnsafePathError
 from ..fsutil import confined
 
 
+_HAS_FILTERS = hasattr(tarfile, "data_filter")
+_FILTER_ERRORS: tuple[type[BaseException], ...] = (tarfile.FilterError,) if _HAS_FILTERS else ()
+
+
 @dataclass(frozen=True)
 class Refusal:
     entry: str
@@ -142,8 +146,11 @@ def safe_extract(archive: str | os.PathLike, target: str | os.PathLike) -> list[
             name = _clean_name(m.name)
             confined(target, name, what=f"archive entry {m.name!r}")
             try:
-                tf.extract(m, target, filter="data")
-            except tarfile.FilterError as exc:  # a second guard; the checks above should catch all
+                if _HAS_FILTERS:
+                    tf.extract(m, target, filter="data")
+                else:  # Python < 3.11.4: the explicit checks above are the only guard
+                    tf.extract(m, target)
+            except _FILTER_ERRORS as exc:  # a second guard; the checks above should catch all
                 raise UnsafePathError(f"{archive}: archive entry {m.name!r} refused: {exc}") from exc
             names.append(name)
     return names

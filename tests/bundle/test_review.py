@@ -106,3 +106,25 @@ def test_absolute_template_path_is_stored_and_re_rendered(toy, tmp_path: Path) -
     toy.template_dir.joinpath("case.txt").unlink()  # and the original is gone from this machine
     report = audit(root)
     assert len(report.phases["rerender"].detail["differs"]) == 6
+
+
+def test_cases_never_run_are_not_counted_as_reproduced(toy, tmp_path: Path) -> None:
+    import subprocess
+    import sys
+
+    from studyflow.collect import collect_study, write_tables
+
+    s = load_study(toy.study_file)
+    render_study(s, build_design(s))
+    subprocess.run([sys.executable, "-m", "studyflow.workflow.runstep", str(s.cases_dir / "k1--m0"), "solve"],
+                   check=True)
+    write_tables(s.root, collect_study(s))
+    archive = pack(toy.study_dir, tmp_path / "toy.tar.gz").archive
+    from studyflow.bundle import RerunChoice
+
+    report = audit(archive, into=tmp_path / "r", rerun=RerunChoice("all"), engine="direct")
+    # only the case the shipped study ran is re-run and compared
+    assert report.phases["rerun"].detail["cases"] == ["k1--m0"] and report.ok, report.failures
+    report = audit(tmp_path / "r", rerun=RerunChoice("cases", cases=("k1--m1",)), engine="direct")
+    assert report.phases["rerun"].detail["checks"] == []
+    assert [n["name"] for n in report.notes if n["what"] == "not compared"] == ["k1--m1"]
