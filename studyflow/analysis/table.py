@@ -86,9 +86,12 @@ def prepare(results: pd.DataFrame, *, dim: int | None = None, measure: float = 1
         missing.append("h or cells")
     if missing:
         raise InputError([Problem(source, c, list(results.columns), "required column missing") for c in missing])
-    df = results
-    if "status" in df.columns:
-        df = df[df["status"].astype(str) == "done"]
+    # Only the columns the assessment reads: every further column would be copied by each sort/take.
+    used = [c for c in ("point", "quantity", "kind", "coord", "value", "h", "cells", "level", "case", "converged",
+                        "row") if c in results.columns]
+    df = results[used]
+    if "status" in results.columns:
+        df = df[(results["status"].astype(str) == "done").to_numpy()]
     df = df.copy()
     df["point"] = df["point"].astype(str)
     df["quantity"] = df["quantity"].astype(str)
@@ -125,8 +128,7 @@ def prepare(results: pd.DataFrame, *, dim: int | None = None, measure: float = 1
 
     keys = ["point", "quantity", "coord"]
     df["gid"] = df.groupby(keys, dropna=False, sort=True).ngroup()
-    groups = df.groupby("gid", sort=True).agg(point=("point", "first"), quantity=("quantity", "first"),
-                                             coord=("coord", "first"))
+    groups = df.drop_duplicates("gid").set_index("gid")[["point", "quantity", "coord"]].sort_index()
     groups["problem"] = ""  # why a group cannot be assessed
     groups["note"] = ""  # what was left out of a group that is still assessed
 
@@ -229,7 +231,7 @@ def assess(
         s = replace(s, formal_order=float(formal_order))
     good, groups, _ = prepare(results, dim=dim, measure=measure, source=source, strict=strict)
     good = good.assign(noise=_noise(good, histories, monitors, residuals))
-    good = good.sort_values(["gid", "h"], kind="stable")
+    good = good.iloc[np.lexsort((good["h"].to_numpy(float), good["gid"].to_numpy()))]  # by group, finest first
     n_groups = len(groups)
     nan = lambda: np.full(n_groups, np.nan)
     out = {c: nan() for c in ("h_fine", "value_fine", "order", "extrapolated", "e_a", "e_ext", "gci_fine",
@@ -351,7 +353,7 @@ def _from_study(study: Any, s: Settings, residuals: Sequence[str], monitors: Map
 def _fine_not_converged(good: pd.DataFrame, groups: pd.DataFrame) -> np.ndarray:
     if "converged" not in good.columns or good.empty:
         return np.zeros(len(groups), dtype=bool)
-    finest = good.sort_values(["gid", "h"], kind="stable").drop_duplicates("gid")
+    finest = good.drop_duplicates("gid")  # ``good`` is sorted by group, finest level first
     conv = finest.set_index("gid")["converged"].reindex(groups.index)
     return (conv.astype("boolean") == False).fillna(False).to_numpy(bool)
 

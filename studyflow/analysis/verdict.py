@@ -30,6 +30,20 @@ ASYMPTOTIC = "in the asymptotic range"
 ORDER_TOLERANCE = 0.25
 
 
+def _sig3(values: NDArray) -> NDArray[np.object_]:
+    """Each value as text with three significant digits ("%.3g"), as an object array.
+
+    Values are rounded to three significant digits numerically first, so only the distinct
+    rounded values are formatted (a table of 100,000 rows has a few hundred of them).
+    """
+    x = np.asarray(values, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        scale = 10.0 ** (np.floor(np.log10(np.abs(x))) - 2)
+        rounded = np.where(np.isfinite(scale) & (scale > 0), np.round(x / scale) * scale, x)
+    uniq, inverse = np.unique(rounded, return_inverse=True)
+    return np.array([f"{u:.3g}" for u in uniq], dtype=object)[inverse.reshape(-1)]
+
+
 def append(reason: NDArray, mask: NDArray, texts: list[str] | str) -> NDArray:
     """``reason`` with '; ' + text appended where ``mask`` holds (texts: one per masked row, or one)."""
     out = reason.copy()
@@ -79,22 +93,22 @@ def judge(
     tol_s = f"{100 * tolerance:.0f} %"
     pf_s = f"{pf:.3g}"
     # Reason text per rule; each is formatted only for the rows the rule decides.
+    g = _sig3
     texts = [
         lambda i: problem[i],
-        lambda i: [f"every difference between levels is within the noise threshold {t:.3g}" for t in tiny[i]],
-        lambda i: [(f"two levels: GCI with the formal order {pf_s} and Fs = 3; refine once more to observe "
-                   "the order")] * len(i),
-        lambda i: [f"a difference between levels is within the noise threshold {t:.3g}; U = 3 x the spread "
-                   "of the values" for t in tiny[i]],
-        lambda i: [f"least-squares scatter sigma = {a:.3g} is not below the data range {b:.3g}; "
-                   "U = 3 sigma / range x (error + sigma + misfit)" for a, b in zip(sigma[i], data_range[i])],
-        lambda i: [f"R = {r:.3g}: the differences grow as the mesh is refined; no uncertainty estimate"
-                   for r in R[i]],
-        lambda i: [f"R = {r:.3g}: the differences change sign; GCI from the apparent order p = {p:.3g}"
-                   for r, p in zip(R[i], order[i])],
-        lambda i: [f"observed order {p:.3g} is below the formal order {pf_s} by more than {tol_s}" for p in order[i]],
-        lambda i: [f"observed order {p:.3g} is above the formal order {pf_s} by more than {tol_s}" for p in order[i]],
-        lambda i: [f"observed order {p:.3g} is within {tol_s} of the formal order {pf_s}" for p in order[i]],
+        lambda i: "every difference between levels is within the noise threshold " + g(tiny[i]),
+        lambda i: np.full(len(i), f"two levels: GCI with the formal order {pf_s} and Fs = 3; refine once more "
+                                  "to observe the order", dtype=object),
+        lambda i: "a difference between levels is within the noise threshold " + g(tiny[i])
+                  + "; U = 3 x the spread of the values",
+        lambda i: "least-squares scatter sigma = " + g(sigma[i]) + " is not below the data range "
+                  + g(data_range[i]) + "; U = 3 sigma / range x (error + sigma + misfit)",
+        lambda i: "R = " + g(R[i]) + ": the differences grow as the mesh is refined; no uncertainty estimate",
+        lambda i: "R = " + g(R[i]) + ": the differences change sign; GCI from the apparent order p = "
+                  + g(order[i]),
+        lambda i: "observed order " + g(order[i]) + f" is below the formal order {pf_s} by more than {tol_s}",
+        lambda i: "observed order " + g(order[i]) + f" is above the formal order {pf_s} by more than {tol_s}",
+        lambda i: "observed order " + g(order[i]) + f" is within {tol_s} of the formal order {pf_s}",
     ]
     code = np.select(conds, list(range(len(conds))), default=len(conds))
     verdict = np.asarray(verdicts, dtype=object)[code]
