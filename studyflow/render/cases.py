@@ -14,13 +14,14 @@ Files other layers read (formats are part of the contract in DEVELOPERS.md):
     {"step": NAME, "index": I, "argv": [...], "reads": [...], "writes": [...],
      "upstream": PREVIOUS_STEP or null, "time_limit_s": S or null, "cores": C}
 
-Both are written with sorted keys so that equal content gives equal bytes, and only when the
-bytes change (``fsutil.write_if_changed``), so an unchanged case keeps its timestamps.
+Both are one-line JSON with sorted keys, so equal content gives equal bytes, and are written only
+when the bytes change (``write_if_changed``), so an unchanged case keeps its timestamps.
 """
 
 from __future__ import annotations
 
 import json
+import os
 import re
 import shlex
 from dataclasses import dataclass, field
@@ -31,15 +32,36 @@ import jinja2
 
 from ..design.cases import Case, Design
 from ..errors import TemplateError
-from ..fsutil import write_if_changed
 from ..spec.model import StepSpec, Study
 from .templates import TemplateSet, TokenRenderer, explain, load_templates, render_file
 
 STATE = ".studyflow"
 
 
+def write_if_changed(path: Path, data: bytes) -> bool:
+    """Write ``data`` only when the file's bytes differ (so an unchanged case keeps its
+    timestamps), atomically through a rename; True if written.
+
+    Like ``fsutil.write_if_changed`` but without an fsync per file: rendered inputs can always be
+    rendered again, and 30,000 fsyncs made rendering a 10,000-case study take 40 s instead of 2.
+    """
+    try:
+        if path.stat().st_size == len(data) and path.read_bytes() == data:
+            return False
+    except FileNotFoundError:
+        path.parent.mkdir(parents=True, exist_ok=True)
+    except NotADirectoryError:
+        pass
+    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+    tmp.write_bytes(data)
+    os.replace(tmp, path)
+    return True
+
+
 def dumps(obj: Any) -> bytes:
-    return (json.dumps(obj, indent=1, sort_keys=True, allow_nan=False) + "\n").encode("utf-8")
+    # One line, sorted keys: equal content gives equal bytes. No indent on purpose: with an
+    # indent, json falls back to its pure-Python encoder, which was half the render time.
+    return (json.dumps(obj, sort_keys=True, allow_nan=False, separators=(", ", ": ")) + "\n").encode("utf-8")
 
 
 def context_for(study: Study, case: Case) -> dict[str, Any]:
@@ -93,6 +115,11 @@ class Renderer:
     _step_tokens: list[list[str]] = field(default_factory=list)
 
     def __post_init__(self) -> None:
+        self._name = self.study.name  # looked up once: a property over a pydantic private attribute
+        self._constants = dict(self.study.constants)
+        self._limits = [self.time_limit_s if self.time_limit_s is not None else self.study.time_limit_s(s)
+                        for s in self.study.steps]
+        self._cores = [s.cores or self.study.resources.cores for s in self.study.steps]
         problems = []
         for i, step in enumerate(self.study.steps):
             try:
@@ -122,25 +149,26 @@ class Renderer:
 
     def step_doc(self, i: int, ctx: dict[str, Any], case_id: str) -> dict[str, Any]:
         step = self.study.steps[i]
-        limit = self.time_limit_s if self.time_limit_s is not None else self.study.time_limit_s(step)
         return {
             "step": step.name, "index": i, "argv": self.argv(i, ctx, case_id),
             "reads": list(step.reads), "writes": list(step.writes),
             "upstream": self.study.steps[i - 1].name if i else None,
-            "time_limit_s": limit, "cores": step.cores or self.study.resources.cores,
+            "time_limit_s": self._limits[i], "cores": self._cores[i],
         }
 
     def case_json(self, case: Case) -> dict[str, Any]:
         m = case.mesh
         return {
-            "study": self.study.name, "case": case.id, "point": case.point.id, "level": m.level,
-            "levels": m.levels, "params": dict(case.params), "constants": dict(self.study.constants),
+            "study": self._name, "case": case.id, "point": case.point.id, "level": m.level,
+            "levels": m.levels, "params": dict(case.params), "constants": self._constants,
             "mesh": {"level": m.level, "levels": m.levels, "h": m.h, "ratio": m.ratio, "cells": m.cells,
                      "sizes": dict(m.sizes)},
         }
 
     def render(self, case: Case) -> "RenderedCase":
-        ctx = context_for(self.study, case)
+        ctx = dict(self._constants)
+        ctx.update(case.params)
+        ctx.update(case=case.id, point=case.point.id, params=dict(case.params), mesh=case.mesh.context())
         files = {tf.rel: render_file(tf, ctx, case.id) for tf in self.templates.files}
         steps = [self.step_doc(i, ctx, case.id) for i in range(len(self.study.steps))]
         return RenderedCase(case, files, dumps(self.case_json(case)), steps)

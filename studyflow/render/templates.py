@@ -117,7 +117,8 @@ def load_templates(root: Path) -> TemplateSet:
 
 
 def render_file(tf: TemplateFile, context: dict[str, Any], case_id: str) -> bytes:
-    if tf.template is None:
+    # Binary, or text without a Jinja delimiter (nor a CR that Jinja would turn into LF): as it is.
+    if tf.template is None or (b"{" not in tf.raw and b"\r" not in tf.raw):
         return tf.raw
     try:
         return tf.template.render(context).encode("utf-8")
@@ -135,6 +136,8 @@ class TokenRenderer:
         self._cache: dict[str, jinja2.Template] = {}
 
     def render(self, token: str, context: dict[str, Any]) -> str:
+        if "{" not in token:  # no Jinja delimiter: the text renders to itself
+            return token
         tpl = self._cache.get(token)
         if tpl is None:
             tpl = self._cache[token] = self.env.from_string(token)

@@ -197,6 +197,9 @@ def run_engine(study: Study, cases: Sequence[str], opts: EngineOptions,
         except OSError as exc:
             raise WorkflowError(f"cannot start Snakemake ({argv[0]} -m snakemake): {exc}") from None
         pgid = proc.pid
+        info = sig.read_json(str(state / RUN_INFO)) or {}
+        info["engine_pgid"] = pgid  # lets `status` (and tests) find the engine's process group
+        sig.write_json_atomic(str(state / RUN_INFO), info)
 
         def on_signal(signum, frame):  # noqa: ARG001
             if not interrupted:

@@ -67,13 +67,16 @@ def read_json(path: str) -> dict[str, Any] | None:
 
 
 def write_json_atomic(path: str, obj: dict[str, Any]) -> None:
-    """Readers see the old file or the new one, never half (write to a temporary file, then rename)."""
+    """Readers see the old file or the new one, never half (write to a temporary file, then rename).
+
+    No fsync: these files are cheap to lose. A marker lost or cut short by a machine crash reads
+    as missing, and the step simply runs again; an fsync per file would cost more than the
+    dispatch of a trivial job.
+    """
     tmp = f"{path}.{os.getpid()}.tmp"
     with open(tmp, "w", encoding="utf-8") as fh:
         fh.write(json.dumps(obj, indent=1, sort_keys=True))
         fh.write("\n")
-        fh.flush()
-        os.fsync(fh.fileno())
     os.replace(tmp, path)
 
 
