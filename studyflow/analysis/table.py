@@ -214,10 +214,12 @@ def assess(
     the quantity from its history) or, on three levels, one of them: U = 3 x the spread of the
     values ("data-range"; our conservative choice). u_num = U / coverage (see COVERAGE).
     ``monitors`` maps a result quantity to its history quantity (default: same name).
-    ``study`` (a loaded study file) supplies what is not given explicitly: ``analysis.formal_order``,
-    ``analysis.safety_factor`` (the three-level Fs), optional ``analysis.coverage``,
-    ``analysis.order_tolerance``, ``analysis.weighted`` and ``analysis.monitors``, ``iteration.residuals``, ``mesh.dim``
-    and ``mesh.measure``.
+    ``study`` (a loaded study file) supplies what is not given explicitly:
+    ``analysis.formal_order``, ``analysis.safety_factor`` (the three-level Fs), optional
+    ``analysis.coverage``, ``analysis.order_tolerance``, ``analysis.weighted`` and
+    ``analysis.monitors``, ``iteration.residuals``, ``mesh.dim`` and ``mesh.measure``.
+    iterative_error is the largest estimate over the group's levels (NaN without a history);
+    iterative_ok applies the 1 % rule of ``iterative.iterative_negligible``.
     Output columns: ``COLUMNS`` plus the parameter columns of the results table.
     The convergence column is "unknown" for two levels (no class from one difference).
     asymptotic_ratio is Roache's GCI23 / (r21^p GCI12) on the three finest levels; with three
