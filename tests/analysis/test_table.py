@@ -211,3 +211,20 @@ def test_profile_stations_that_differ_between_meshes_are_explained():
     unc = assess(t, None, 2.0)
     bad = unc[(unc["quantity"] == "cf") & (unc["verdict"] == "cannot assess")]
     assert len(bad) > 0 and bad["reason"].str.contains("stations must be the same").all()
+
+
+@pytest.mark.parametrize(
+    "values,verdict",
+    [
+        ((1.0, 1.1, 0.95, 1.2), "not yet asymptotic: refine further"),  # scatter >= data range
+        ((3.0, 3.0, 3.0, 3.0), "no discernible mesh dependence"),
+        ((1.0, 1.0 + 1e-15, 1.0, 1.0 - 1e-15), "no discernible mesh dependence"),  # rounding only
+        ((1.0, 1.01, 1.51, 11.51), "not yet asymptotic: refine further"),  # differences x50, x20: p > 4
+    ],
+)
+def test_four_level_awkward_data_without_exception(values, verdict):
+    rows = [_row("p", lev, H[lev], "q", v) for lev, v in zip((3, 2, 1, 0), values)]
+    with np.errstate(all="raise"):
+        got = assess(pd.DataFrame(rows), None, 2.0).iloc[0]
+    assert got["verdict"] == verdict
+    assert np.isfinite(got["U"])
