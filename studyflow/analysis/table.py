@@ -392,3 +392,16 @@ def profile_summary(uncertainty: pd.DataFrame) -> pd.DataFrame:
                 order_max=("order", "max"), oscillatory_share=("osc", "mean"), diverging_share=("div", "mean"),
                 U_max=("U", "max"), U_mean=("U", "mean")).reset_index()
     return out[cols]
+
+
+def profile_band(uncertainty: pd.DataFrame) -> pd.DataFrame:
+    """The uncertainty band along every profile: per station the finest value, value_fine - U and
+    value_fine + U, the local order and the verdict (stations sorted by coordinate)."""
+    prof = uncertainty[uncertainty["coord"].notna()].sort_values(["point", "quantity", "coord"], kind="stable")
+    return pd.DataFrame({
+        "point": prof["point"].to_numpy(), "quantity": prof["quantity"].to_numpy(),
+        "coord": prof["coord"].to_numpy(float), "value_fine": prof["value_fine"].to_numpy(float),
+        "lower": (prof["value_fine"] - prof["U"]).to_numpy(float),
+        "upper": (prof["value_fine"] + prof["U"]).to_numpy(float),
+        "order": prof["order"].to_numpy(float), "verdict": prof["verdict"].to_numpy(object),
+    })

@@ -6,7 +6,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from studyflow.analysis import COLUMNS, assess, profile_summary, three_level
+from studyflow.analysis import COLUMNS, assess, profile_band, profile_summary, three_level
 from studyflow.analysis.leastsquares import least_squares_uncertainty
 from studyflow.errors import AnalysisError, InputError
 
@@ -228,3 +228,13 @@ def test_four_level_awkward_data_without_exception(values, verdict):
         got = assess(pd.DataFrame(rows), None, 2.0).iloc[0]
     assert got["verdict"] == verdict
     assert np.isfinite(got["U"])
+
+
+def test_profile_band_is_value_plus_minus_U_per_station():
+    unc = assess(_table(), None, 2.0)
+    band = profile_band(unc)
+    assert len(band) == 4 and list(band["coord"][:2]) == [0.25, 0.75]
+    cf = unc[unc["quantity"] == "cf"].sort_values(["point", "coord"])
+    assert band["upper"].to_numpy() == pytest.approx((cf["value_fine"] + cf["U"]).to_numpy())
+    # Analytic data x (1 + 0.5 h^2): the exact profile x lies inside the band at every station.
+    assert np.all((band["lower"] <= band["coord"]) & (band["coord"] <= band["upper"]))
