@@ -115,10 +115,17 @@ def job_state(job_id: str) -> tuple[str | None, str | None]:
         return None, None
     fields = dict(tok.split("=", 1) for tok in done.stdout.split() if "=" in tok)
     state = fields.get("JobState")
-    detail = None
-    if fields.get("ExitCode") and fields["ExitCode"] != "0:0":
-        detail = f"exit code {fields['ExitCode']}"
-    return state, detail
+    return state, exit_detail(fields.get("ExitCode", ""))
+
+
+def exit_detail(code: str) -> str | None:
+    """SLURM's ``ExitCode=N:S`` (exit status N, or killed by signal S) in words."""
+    status, _, signo = code.partition(":")
+    if signo.isdigit() and int(signo):
+        return f"killed by signal {signo}"
+    if status.isdigit() and int(status):
+        return f"exit code {status}"
+    return None
 
 
 def state_from_log(path: Path) -> str | None:

@@ -23,9 +23,13 @@ echo "{\\"y\\": $(( {{ x }} * 2 ))}" > metrics.json
 """
 
 
+POST = "cp metrics.json summary.json\n"
+
+
 def make_study(root: Path, values: list[int], cluster: dict | None,
-               resources: dict | None = None) -> Path:
-    """A study folder under ``root`` with one case per value of ``x``; returns the folder."""
+               resources: dict | None = None, post: bool = False) -> Path:
+    """A study folder under ``root`` with one case per value of ``x``; returns the folder.
+    ``post`` adds a second step that copies the first step's output."""
     (root / "template").mkdir(parents=True, exist_ok=True)
     (root / "template" / "case.sh").write_text(SCRIPT)
     study = root / "study"
@@ -38,6 +42,10 @@ def make_study(root: Path, values: list[int], cluster: dict | None,
         "quantities": {"y": {"from": "json", "file": "metrics.json", "key": "y"}},
         "resources": resources or {"cores": 1, "memory_mb": 300, "time_min": 3},
     }
+    if post:
+        (root / "template" / "post.sh").write_text(POST)
+        doc["steps"].append({"name": "post", "run": ["sh", "post.sh"], "reads": ["post.sh", "metrics.json"],
+                             "writes": ["summary.json"]})
     if cluster is not None:
         doc["cluster"] = cluster
     (study / "study.yaml").write_text(yaml.safe_dump(doc, sort_keys=False))
