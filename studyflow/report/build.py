@@ -26,7 +26,8 @@ from .figures.profiles import load_reference, profile_panels
 from .figures.sweeps import quantity_vs_parameter, swept
 from .provenance import failures, provenance
 from .tables import case_table, uncertainty_summary
-from .words import sentence, verdict_class
+from ..analysis import profile_summary
+from .words import profile_sentence, sentence, verdict_class
 
 MAX_VERDICT_CARDS = 24
 MAX_PROFILE_POINTS = 6
@@ -143,6 +144,12 @@ class _Builder:
                     f, f"error-{slug(quantity)}", f"{quantity}: error against mesh size",
                     "|value - extrapolated| on log-log axes; the dotted line has the slope of the formal order"
                     + (f" p = {fmt(formal, 3)}." if formal else "."), sec["id"]))
+            if kind == "profile" and data.uncertainty is not None and not data.uncertainty.empty:
+                prof = profile_summary(data.uncertainty)
+                prof = prof[prof["quantity"].astype(str) == quantity]
+                for r in prof.head(limit).to_dict("records"):
+                    sec["sentences"].append({"point": r["point"], "text": profile_sentence(pd.Series(r), unit),
+                                             "verdict": "profile", "cls": "neutral"})
             if unc is not None:
                 for r in unc.head(limit).to_dict("records"):
                     sec["sentences"].append({"point": r["point"], "text": sentence(pd.Series(r), unit, formal),
@@ -175,12 +182,12 @@ class _Builder:
         return out
 
     # --- histories ---------------------------------------------------------------------------------
-    def histories(self, cases: list[str]) -> list[FigureFile]:
+    def histories(self, cases: list[str], status: dict[str, str]) -> list[FigureFile]:
         hist = self.data.histories
         if hist is None or hist.empty:
             return []
         residuals = list(self.data.settings.residuals)
-        pages = residual_pages(hist, cases, residuals, self.data.settings.tolerance)
+        pages = residual_pages(hist, cases, residuals, self.data.settings.tolerance, status)
         out = []
         for i, f in enumerate(pages, start=1):
             title = "Residual histories" + (f", page {i} of {len(pages)}" if len(pages) > 1 else "")
@@ -254,7 +261,7 @@ class _Builder:
         return state.case, out, notes
 
 
-def build_report(study: str | os.PathLike, out: str | os.PathLike | None = None, *, fields: bool = True,
+def build_report(study: str | os.PathLike | Any, out: str | os.PathLike | None = None, *, fields: bool = True,
                  renderer_argv: list[str] | None = None) -> ReportResult:
     """Build ``<study>/report/index.html`` with every figure (PNG, SVG) and table (CSV, Markdown, LaTeX).
 
@@ -262,7 +269,9 @@ def build_report(study: str | os.PathLike, out: str | os.PathLike | None = None,
     ``fields=False`` skips the field pictures and the mesh family; ``renderer_argv`` replaces the
     command of the off-screen field renderer (tests use it to simulate a crash).
     """
-    root = Path(study)
+    root = Path(getattr(study, "file", None) or study)  # a loaded Study, its file or its folder
+    if root.is_file():
+        root = root.parent
     if not root.is_dir():
         raise InputError(Problem(str(root), "", str(study), "is not a study folder"))
     data = load(root)
@@ -278,7 +287,7 @@ def build_report(study: str | os.PathLike, out: str | os.PathLike | None = None,
     quantities = b.quantity_sections()
     sweep_figs = b.sweeps()
     cases_sorted = ctable["case"].astype(str).tolist()
-    hist_figs = b.histories(cases_sorted)
+    hist_figs = b.histories(cases_sorted, dict(zip(cases_sorted, ctable["status"].astype(str))))
     if fields:
         fields_case, field_figs, field_notes = b.fields(ctable)
     else:
@@ -289,6 +298,9 @@ def build_report(study: str | os.PathLike, out: str | os.PathLike | None = None,
     tables.append(save_table(summary, b.tabdir, "uncertainty-summary", "Uncertainty of scalar quantities"))
     tables.append(save_table(ctable, b.tabdir, "cases", "Cases"))
     if data.uncertainty is not None:
+        prof = profile_summary(data.uncertainty)
+        if len(prof):
+            tables.append(save_table(prof, b.tabdir, "profile-summary", "Uncertainty along profiles"))
         tables.append(save_table(data.uncertainty, b.tabdir, "uncertainty-full",
                                  "Uncertainty, every point, quantity and station"))
     if data.results is not None:
@@ -318,7 +330,7 @@ def build_report(study: str | os.PathLike, out: str | os.PathLike | None = None,
                          "verdict": r.get("verdict", "-"), "cls": verdict_class(r.get("verdict"))})
     table_ctx = []
     for t in tables:
-        shown = t.name in ("uncertainty-summary", "cases")
+        shown = t.name in ("uncertainty-summary", "profile-summary", "cases")
         table_ctx.append({"id": f"t-{t.name}", "title": t.title,
                           "files": [(k, v.relative_to(out_dir).as_posix()) for k, v in t.files.items()],
                           "html": page.table_html(t.frame) if shown and t.name != "cases" else

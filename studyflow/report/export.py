@@ -67,14 +67,22 @@ def svg_wrapping_png(png: Path, svg: Path) -> None:
         f'href="data:image/png;base64,{b64}"/></svg>\n'))
 
 
+# Above this many rows a table is written as CSV only: nobody pastes 10^4 rows into a paper, and the
+# Markdown and LaTeX writers would take most of a large study's report time.
+TYPESET_ROWS = 5000
+
+
 def save_table(frame: pd.DataFrame, folder: Path, name: str, title: str) -> TableFile:
     out = TableFile(name, title, frame)
     stem = folder / name
     atomic_write_text(stem.with_suffix(".csv"), frame.to_csv(index=False))
+    out.files = {"CSV": stem.with_suffix(".csv")}
+    if len(frame) > TYPESET_ROWS:
+        return out
     md = frame.to_markdown(index=False) if len(frame.columns) else ""
     atomic_write_text(stem.with_suffix(".md"), f"# {title}\n\n{md}\n")
     latex = frame.to_latex(index=False, escape=True, na_rep="-", float_format=lambda x: f"{x:.6g}",
                            caption=title, label=f"tab:{name}", longtable=len(frame) > 40)
     atomic_write_text(stem.with_suffix(".tex"), latex)
-    out.files = {"CSV": stem.with_suffix(".csv"), "Markdown": stem.with_suffix(".md"), "LaTeX": stem.with_suffix(".tex")}
+    out.files.update({"Markdown": stem.with_suffix(".md"), "LaTeX": stem.with_suffix(".tex")})
     return out

@@ -72,3 +72,16 @@ def verdict_class(verdict: object) -> str:
     if any(w in v for w in ("ok", "pass", "good", "converged", "accept", "asymptotic", "monotonic")):
         return "good"
     return "neutral"
+
+
+def profile_sentence(row: pd.Series, unit: str | None) -> str:
+    """One row of ``analysis.profile_summary`` as a sentence."""
+    u = "" if not unit or unit == "-" else f" {unit}"
+    text = (f"Along {fmt(row.get('stations'), 4)} stations the local observed order averages "
+            f"{fmt(row.get('order_average'))} (from {fmt(row.get('order_min'), 3)} to {fmt(row.get('order_max'), 3)})")
+    osc, div = _num(row.get("oscillatory_share")), _num(row.get("diverging_share"))
+    if math.isfinite(osc) and osc > 0:
+        text += f"; {fmt(100 * osc, 3)} % of the stations converge oscillating"
+    if math.isfinite(div) and div > 0:
+        text += f"; {fmt(100 * div, 3)} % diverge"
+    return text + f"; U is at most {fmt(row.get('U_max'))}{u} (mean {fmt(row.get('U_mean'))}{u})."

@@ -25,7 +25,7 @@ SAFETY = 1.25  # Celik et al. (2008): Fs = 1.25 for three or more meshes
 
 
 def point_id(re: float, angle: float) -> str:
-    return f"Re{re:.0e}-ang{angle:g}".replace("+0", "").replace("+", "")
+    return f"Re{re:.4g}-ang{angle:g}".replace("+", "")
 
 
 def dp_exact(re: float, angle: float) -> float:

@@ -10,7 +10,7 @@ from html.parser import HTMLParser
 
 import pandas as pd
 import pytest
-from synthetic import richardson
+from synthetic import point_id, richardson
 
 from studyflow.errors import InputError
 from studyflow.report import build_report
@@ -118,7 +118,7 @@ def test_rebuild_while_running_shows_progress(tmp_path):
     # collected an hour ago; then the pending case finishes (as the step runner records it)
     for table in (root / "results").iterdir():
         os.utime(table, (table.stat().st_mtime - 3600, table.stat().st_mtime - 3600))
-    status = root / "cases" / "Re1e4-ang0--m2" / ".studyflow" / "solve.status.json"
+    status = root / "cases" / f"{point_id(1.0e4, 0.0)}--m2" / ".studyflow" / "solve.status.json"
     status.write_text(json.dumps({"state": "ok", "wall_s": 3.0, "started": "2026-03-04T09:00:00Z",
                                   "ended": "2026-03-04T09:01:00Z"}))
     second = build_report(root, fields=False)
@@ -147,3 +147,17 @@ def test_reference_column_missing_names_the_column(tmp_path):
     with pytest.raises(InputError) as err:
         build_report(root, fields=False)
     assert "report.references.cf.y" in str(err.value) and "'tau'" in str(err.value)
+
+
+def test_profiles_are_summarised_along_their_stations(built):
+    """The profile sentence gives the mean local order over the stations (recomputed here from the
+    finest three profiles with the three-mesh formula, Celik et al. 2008)."""
+    root, result = built
+    page = _page(built)
+    assert "Along 12 stations the local observed order averages" in page
+    results = pd.read_csv(root / "results" / "results.csv")
+    cf = results[(results.quantity == "cf") & (results.point == point_id(1.0e4, 0.0))]
+    f = {lev: g.sort_values("coord")["value"].to_numpy() for lev, g in cf.groupby("level")}
+    orders = [richardson(f[2][i], f[1][i], f[0][i], 2.0)["order"] for i in range(12)]
+    assert f"{sum(orders) / len(orders):.4g}" in page
+    assert (result.index.parent / "tables" / "profile-summary.csv").is_file()

@@ -92,7 +92,8 @@ def test_sweep_against_reynolds_number(data):
 
 def test_residual_small_multiples(data):
     cases = list(dict.fromkeys(data.results.case))
-    (fig,) = residual_pages(data.histories, cases, ["mass", "momentum"], 1.0e-6)
+    status = dict(zip(data.cases_table.case, data.cases_table.status))
+    (fig,) = residual_pages(data.histories, cases, ["mass", "momentum"], 1.0e-6, status)
     assert fig.studyflow_panels == cases
     lo, hi = fig.studyflow_scale["decades"]
     assert lo <= -6 <= hi  # the tolerance is inside the drawn range
@@ -107,6 +108,9 @@ def test_residual_small_multiples(data):
     # the tolerance sits at the same height in every panel, (log10(tol) - lo) / (hi - lo) above its foot
     feet = sorted({round(s[0, 1] - (math.log10(1e-6) - lo) / (hi - lo), 9) for s in tol})
     assert len(feet) == math.ceil(len(cases) / 8)
+    titles = {t.get_text(): t for t in ax.texts}
+    failed = [c for c, s in status.items() if s == "failed"][0]
+    assert f"{failed} (failed)" in titles and "failed, no history" in titles
 
 
 def test_profile_with_blasius_reference(data):

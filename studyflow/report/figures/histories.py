@@ -42,8 +42,13 @@ def panel_origin(index: int, columns: int, rows: int) -> tuple[float, float]:
 
 
 def residual_pages(histories: pd.DataFrame, cases: list[str], residuals: list[str],
-                   tolerance: float | None) -> list[Figure]:
-    """Pages of small multiples, one panel per case (in the order of ``cases``)."""
+                   tolerance: float | None, status: dict[str, str] | None = None) -> list[Figure]:
+    """Pages of small multiples, one panel per case (in the order of ``cases``).
+
+    ``status`` (case -> done | failed | pending) colours the panel titles and names an empty panel.
+    """
+    status = status or {}
+    title_colour = {"failed": style.BAD, "pending": style.PENDING}
     style.apply()
     hist = histories[histories["quantity"].isin(residuals)] if residuals else histories
     hist = hist.assign(case=hist["case"].astype(str))
@@ -85,14 +90,17 @@ def residual_pages(histories: pd.DataFrame, cases: list[str], residuals: list[st
         for i, case in enumerate(chunk):
             x0, y0 = panel_origin(i, columns, rows_n)
             frames.append(Rectangle((x0, y0), 1.0, 1.0))
-            ax.text(x0, y0 + 1.03, case, fontsize=5.5, va="bottom", ha="left", color=style.INK, clip_on=False)
+            state = status.get(case, "")
+            ax.text(x0, y0 + 1.03, case + (f" ({state})" if state in title_colour else ""), fontsize=5.5,
+                    va="bottom", ha="left", color=title_colour.get(state, style.INK), clip_on=False)
             for d in range(lo + 1, hi):
                 yy = y0 + (d - lo) / (hi - lo)
                 grid_segs.append(np.array([[x0, yy], [x0 + 1.0, yy]]))
             for q, it, logv in lines.get(case, []):
                 segs[q].append(np.c_[x0 + it / it_max, y0 + (logv - lo) / (hi - lo)])
             if case not in lines:
-                ax.text(x0 + 0.5, y0 + 0.5, "no history", fontsize=6, ha="center", va="center", color=style.PENDING)
+                ax.text(x0 + 0.5, y0 + 0.5, {"pending": "not run yet", "failed": "failed, no history"}.get(state, "no history"),
+                        fontsize=6, ha="center", va="center", color=title_colour.get(state, style.PENDING))
             if tolerance and tolerance > 0:
                 yt = y0 + (math.log10(tolerance) - lo) / (hi - lo)
                 tol_segs.append(np.array([[x0, yt], [x0 + 1.0, yt]]))

@@ -58,7 +58,8 @@ def quantity_vs_parameter(results: pd.DataFrame, uncertainty: pd.DataFrame | Non
         unc = uncertainty[(uncertainty["quantity"] == quantity)]
         if "coord" in unc:
             unc = unc[pd.to_numeric(unc["coord"], errors="coerce").isna()]
-        unc = unc.set_index(unc["point"].astype(str))
+        # one row per point (scalars only); a repeated point keeps its first row
+        unc = unc.assign(point=unc["point"].astype(str)).drop_duplicates("point").set_index("point", drop=False)
     style_line = "o" if scatter else "o-"
     for ax, (title, group) in zip(axes, groups):
         ids = set(group["point"].astype(str))
