@@ -222,12 +222,11 @@ def _pack_locked(layout: StudyLayout, archive: str | os.PathLike | None, fields:
     out = Path(archive) if archive is not None else layout.study_dir.parent / default_archive_name(layout)
     out = out.resolve()
     entries: list[FileEntry] = []
+    # the archive itself may be written inside the study folder: never pack it into itself
+    members = [m for m in members if m.source != out]
     for m in members:
-        if m.source.resolve() == out:
-            continue
         digest, size = _hash_file(m.source)
         entries.append(FileEntry(m.path, digest, size, m.role))
-    members = [m for m in members if m.source.resolve() != out]
 
     commands, dates = _run_history(layout)
     environment = env.capture(_solver_commands(layout), commands, dates)
