@@ -12,6 +12,7 @@ import os
 import platform
 import re
 import shutil
+import signal
 import subprocess
 import sys
 import tempfile
@@ -90,13 +91,24 @@ def probe_solver(command: str, cwd: str | None = None, timeout: float = 5.0) -> 
         # run in an empty scratch folder: a program that ignores --version and starts work
         # must not write into the study
         with tempfile.TemporaryDirectory(prefix="studyflow-probe-") as scratch:
-            proc = subprocess.run([resolved, "--version"], capture_output=True, timeout=timeout,
-                                  stdin=subprocess.DEVNULL, cwd=scratch, check=False)
-    except subprocess.TimeoutExpired:
-        return SolverVersion(command, resolved, None, None, f"no answer to --version within {timeout:g} s")
+            proc = subprocess.Popen([resolved, "--version"], stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                                    stdin=subprocess.DEVNULL, cwd=scratch, start_new_session=True)
+            try:
+                out, err = proc.communicate(timeout=timeout)
+            except subprocess.TimeoutExpired:
+                # its own session: one signal stops the program and anything it started
+                try:
+                    os.killpg(proc.pid, signal.SIGKILL)
+                except ProcessLookupError:
+                    pass
+                proc.wait()
+                for pipe in (proc.stdout, proc.stderr):
+                    if pipe is not None:
+                        pipe.close()
+                return SolverVersion(command, resolved, None, None, f"no answer to --version within {timeout:g} s")
     except OSError as exc:
         return SolverVersion(command, resolved, None, None, f"could not start: {exc.strerror or exc}")
-    text = (proc.stdout or b"").decode("utf-8", "replace") + "\n" + (proc.stderr or b"").decode("utf-8", "replace")
+    text = (out or b"").decode("utf-8", "replace") + "\n" + (err or b"").decode("utf-8", "replace")
     line = next((ln.strip() for ln in text.splitlines() if ln.strip()), None)
     if proc.returncode != 0:
         return SolverVersion(command, resolved, line, None, f"--version exited with code {proc.returncode}")
