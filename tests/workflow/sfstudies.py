@@ -1,0 +1,58 @@
+"""Small studies with shell steps for the workflow tests (trivial commands, so runs stay fast)."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+
+def write_study(root: Path, study: str, files: dict[str, str]) -> Path:
+    (root / "tpl").mkdir(parents=True, exist_ok=True)
+    for rel, text in files.items():
+        p = root / "tpl" / rel
+        p.parent.mkdir(parents=True, exist_ok=True)
+        p.write_text(text)
+    (root / "study.yaml").write_text(study)
+    return root
+
+
+def table_study(root: Path, points: int, levels: int, sleep: float = 0.0, extra: str = "") -> Path:
+    """``points`` table points x ``levels`` mesh levels; one step that records each execution.
+
+    The step appends its case id to ``<study>/runs.log`` (append-only, one line per execution)
+    after writing ``out.txt`` in two halves with an optional pause between them, so a kill in the
+    middle leaves a half-written output behind.
+    """
+    pts = ", ".join(f"{{id: p{i:02d}, a: {i}}}" for i in range(points))
+    study = f"""\
+title: rerun test
+template: tpl
+parameters:
+  - kind: table
+    points: [{pts}]
+mesh: {{levels: {levels}, ratio: 2, counts: {{nx: 2}}}}
+steps:
+  - name: solve
+    run: [sh, step.sh]
+    reads: [step.sh, in.txt]
+    writes: [out.txt]
+quantities:
+  result: {{from: json, file: out.txt, key: result}}
+{extra}"""
+    pause = f"sleep {sleep}\n" if sleep else ""
+    # Shell built-ins only (read, printf, echo): the step must cost next to nothing.
+    step = ("read a < in.txt\n"
+            "printf '{\"result\": ' > out.txt\n"
+            f"{pause}"
+            "printf '%s}\\n' \"$a\" >> out.txt\n"
+            "echo \"{{ case }}\" >> ../../runs.log\n")
+    return write_study(root, study, {"step.sh": step, "in.txt": "{{ a * 10 + mesh.nx }}\n"})
+
+
+def executions(root: Path) -> list[str]:
+    path = root / "runs.log"
+    return path.read_text().split() if path.exists() else []
+
+
+def status(root: Path, case: str, step: str = "solve") -> dict:
+    return json.loads((root / "cases" / case / ".studyflow" / f"{step}.status.json").read_text())
