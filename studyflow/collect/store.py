@@ -21,8 +21,8 @@ _TEXT = ("study", "case", "point", "quantity", "kind", "unit", "status", "reason
 
 
 def _csv_bytes(df: pd.DataFrame) -> bytes:
-    # repr-exact floats, so CSV and Parquet hold the same numbers.
-    return df.to_csv(index=False, float_format="%.17g", lineterminator="\n").encode("utf-8")
+    # pandas writes floats with their shortest round-trip repr, so CSV and Parquet hold the same numbers.
+    return df.to_csv(index=False, lineterminator="\n").encode("utf-8")
 
 
 def _parquet_bytes(df: pd.DataFrame) -> bytes:

@@ -22,7 +22,7 @@ def study(tmp_path: Path):
     cs = cases_of(s)
     assert len(cs) == 6  # 2 points x 3 levels
     write_case(s, cs[0], outputs=good_outputs(0.51))
-    write_case(s, cs[1], outputs=good_outputs(0.505, residuals=(1e-2, 1e-4)))  # not converged
+    write_case(s, cs[1], outputs=good_outputs(1 / 3, residuals=(1e-2, 1e-4)))  # not converged
     write_case(s, cs[2], outputs={**good_outputs(0.5), "metrics.json": '{"drag": {"cd": NaN}}'})
     write_case(s, cs[3], steps=("solve",), failed={"solve": "exit code 3"})
     write_case(s, cs[4], steps=("solve",), outputs=good_outputs(0.6))  # post not finished: half-done
@@ -142,6 +142,9 @@ def test_write_and_read_back(study, tmp_path: Path) -> None:
     (study.root / "results" / "results.parquet").unlink()
     csv_back = read_results(study.root).results
     pd.testing.assert_frame_equal(csv_back, t.results, check_dtype=False)
+    # Bit-exact numbers through CSV, e.g. 1/3 (the value of case 1's drag), not 17-digit approximations.
+    np.testing.assert_array_equal(csv_back.value.to_numpy(), t.results.value.to_numpy())
+    assert (csv_back.value == 1 / 3).sum() == 1
     with pytest.raises(CollectError, match="collect the study first"):
         read_results(tmp_path / "nowhere")
 
