@@ -7,7 +7,6 @@ circle. The residual history goes to residuals.csv, one row per solver sweep.
 
 from __future__ import annotations
 
-import csv
 import json
 import math
 import os

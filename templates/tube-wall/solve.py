@@ -16,9 +16,9 @@ os.environ["PATH"] = os.path.dirname(sys.executable) + os.pathsep + os.environ.g
 # One fixed solver suite, so a case gives the same numbers wherever it runs.
 os.environ.setdefault("FIPY_SOLVERS", "scipy")
 
-import json  # noqa: E402
+import json
 
-import numpy as np  # noqa: E402
+import numpy as np
 
 SETTINGS = "wall.json"
 MESH = "mesh.msh"
