@@ -79,6 +79,7 @@ class AuditReport:
     root: str
     study: str = ""
     manifest_sha256: str = ""
+    scratch: str | None = None  # kept scratch folder (re-rendered and re-run cases), if any
     phases: dict[str, Phase] = field(default_factory=dict)
     notes: list[dict[str, Any]] = field(default_factory=list)
     failures: list[str] = field(default_factory=list)
@@ -95,11 +96,21 @@ class AuditReport:
         return {
             "bundle": self.bundle, "root": self.root, "study": self.study,
             "manifest_sha256": self.manifest_sha256, "studyflow_version": studyflow.__version__,
+            "scratch": self.scratch,
             "phases": {k: v.to_json() for k, v in self.phases.items()},
             "notes": self.notes, "failures": self.failures,
             "verdict": "pass" if self.ok else "fail", "exit_code": self.exit_code,
             "caution": CAUTION,
         }
+
+
+# a phase that cannot be done is a finding of the audit, not a crash of it: a damaged or
+# hand-edited bundle can make any reader fail
+_PHASE_ERRORS = (StudyflowError, OSError, ValueError, KeyError, TypeError)
+
+
+def _why(exc: BaseException) -> str:
+    return str(exc) if isinstance(exc, StudyflowError) else f"{type(exc).__name__}: {exc}"
 
 
 def find_root(folder: Path) -> Path:
@@ -216,9 +227,9 @@ def audit(source: str | Path, *, into: str | Path | None = None, rerun: RerunCho
             for c in outcome.extra_cases:
                 report.failures.append(f"shipped case not in the study's design: {c}")
             case_ids = outcome.case_ids
-        except StudyflowError as exc:
-            ph.ran, ph.ok, ph.error = True, False, str(exc)
-            report.failures.append(f"re-render failed: {exc}")
+        except _PHASE_ERRORS as exc:
+            ph.ran, ph.ok, ph.error = True, False, _why(exc)
+            report.failures.append(f"re-render failed: {_why(exc)}")
             case_ids = []
 
         ph = report.phases["rerun"] = Phase("rerun", detail={"how": rerun.describe()})
@@ -237,9 +248,9 @@ def audit(source: str | Path, *, into: str | Path | None = None, rerun: RerunCho
                 for c, why in outcome.failed_cases.items():
                     report.failures.append(f"re-run of case {c} failed: {why}")
                 report.notes.extend(outcome.notes)
-            except StudyflowError as exc:
-                ph.ran, ph.ok, ph.error = True, False, str(exc)
-                report.failures.append(f"re-run failed: {exc}")
+            except _PHASE_ERRORS as exc:
+                ph.ran, ph.ok, ph.error = True, False, _why(exc)
+                report.failures.append(f"re-run failed: {_why(exc)}")
 
         ph = report.phases["uncertainty"] = Phase("uncertainty")
         try:
@@ -252,10 +263,12 @@ def audit(source: str | Path, *, into: str | Path | None = None, rerun: RerunCho
             elif not outcome.ran:
                 report.notes.append({"what": "uncertainty", "name": "uncertainty table", "packed": None,
                                      "now": outcome.summary})
-        except StudyflowError as exc:
-            ph.ran, ph.ok, ph.error = True, False, str(exc)
-            report.failures.append(f"uncertainty table re-computation failed: {exc}")
+        except _PHASE_ERRORS as exc:
+            ph.ran, ph.ok, ph.error = True, False, _why(exc)
+            report.failures.append(f"uncertainty table re-computation failed: {_why(exc)}")
     finally:
         if not keep_scratch and scratch is None:
             shutil.rmtree(work, ignore_errors=True)
+        else:
+            report.scratch = str(work)
     return report

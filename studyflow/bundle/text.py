@@ -110,6 +110,8 @@ def audit_text(report: AuditReport, limit: int = 40) -> str:
         out += [f"  - {f}" for f in report.failures[:limit]]
         if len(report.failures) > limit:
             out.append(f"  ... {len(report.failures) - limit} more (see --json)")
+    if report.scratch:
+        out.append(f"scratch kept at: {report.scratch}")
     verdict = "PASS: the bundle is intact and reproduced" if report.ok else "FAIL"
     out.append(f"verdict: {verdict} (exit code {report.exit_code})")
     out.append(CAUTION)

@@ -18,7 +18,6 @@ from pathlib import Path, PurePosixPath
 from ..errors import AuditError, UnsafePathError
 from ..fsutil import confined
 
-
 _HAS_FILTERS = hasattr(tarfile, "data_filter")
 _FILTER_ERRORS: tuple[type[BaseException], ...] = (tarfile.FilterError,) if _HAS_FILTERS else ()
 
