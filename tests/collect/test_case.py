@@ -91,3 +91,32 @@ def test_case_state_from_markers(tmp_path: Path) -> None:
     (f / ".studyflow" / "solve.done").unlink()
     _status(f, "solve", "running")
     assert case_state(f, ["solve", "post"]).status == "pending"
+
+
+def test_fast_confinement_agrees_with_fsutil_confined(tmp_path: Path) -> None:
+    # fsutil.confined (realpath based) is the reference; caseinfo.inside must refuse and resolve alike.
+    from studyflow.collect.caseinfo import inside
+    from studyflow.errors import UnsafePathError
+    from studyflow.fsutil import confined
+
+    root = tmp_path / "case"
+    (root / "a" / "b").mkdir(parents=True)
+    (root / "a" / "b" / "f.json").write_text("{}")
+    (tmp_path / "out.json").write_text("{}")
+    os.symlink(root / "a", root / "la")  # link inside
+    os.symlink(tmp_path, root / "lout")  # link out
+    os.symlink("../../..", root / "a" / "b" / "rel")  # relative link out
+    os.symlink("missing-target", root / "dangling")
+    paths = ["a/b/f.json", "la/b/f.json", "lout/out.json", "a/b/rel/out.json", "a/../a/b/f.json", "../out.json",
+             "a/b/../../../out.json", "nothere/x.json", "dangling", ".", "a/./b//f.json", "la/../a/b/f.json",
+             str(tmp_path / "out.json")]
+
+    def outcome(fn, p):
+        try:
+            return str(fn(p))
+        except UnsafePathError:
+            return "refused"
+
+    real = os.path.realpath(root)
+    for p in paths:
+        assert outcome(lambda q: inside(real, q), p) == outcome(lambda q: confined(root, q), p), p

@@ -12,9 +12,9 @@ Operations (``operation:``, inferred from ``probe:`` or ``line:`` when those are
 * ``min`` / ``max``: over the region's nodes (point data) or cells (cell data).
 
 The region is the cells of the highest dimension by default; ``region: {cells: boundary}`` takes
-the cells one dimension lower (boundary lines of a 2-D mesh, faces of a 3-D one); ``region:
-{cell_set: NAME}`` a named cell set; ``region: {tag: ARRAY, value: N}`` the cells whose integer
-cell-data array equals N (e.g. a boundary id). Vectors need ``component:`` (an index or
+the cells one dimension lower (boundary lines of a 2-D mesh, faces of a 3-D one); ``region: {tag:
+ARRAY, value: N}`` the cells whose integer cell-data array equals N (a boundary or zone id; VTU,
+VTK and XDMF have no named cell sets, so writers store them as such arrays). Vectors need ``component:`` (an index or
 ``magnitude``). An XDMF time series gives its last step unless ``step:`` says otherwise; XDMF
 heavy-data files must lie inside the case folder.
 """
@@ -62,15 +62,14 @@ class Region(BaseModel):
     model_config = ConfigDict(extra="forbid", frozen=True)
 
     cells: Literal["domain", "boundary"] | None = None
-    cell_set: str | None = None
     tag: str | None = None
     value: int | None = None
 
     @model_validator(mode="after")
     def _one(self) -> "Region":
-        given = [n for n in ("cells", "cell_set", "tag") if getattr(self, n) is not None]
+        given = [n for n in ("cells", "tag") if getattr(self, n) is not None]
         if len(given) != 1:
-            raise ValueError("a region is one of {cells: domain|boundary}, {cell_set: NAME} or {tag: ARRAY, value: N}")
+            raise ValueError("a region is either {cells: domain|boundary} or {tag: ARRAY, value: N}")
         if (self.tag is None) != (self.value is None):
             raise ValueError("tag and value go together: {tag: ARRAY, value: N}")
         return self
@@ -208,13 +207,6 @@ def _blocks(mesh: Any, options: FieldOptions) -> list[tuple[int, np.ndarray]]:
         if not chosen:
             raise ReadFailure(f"the mesh has no cells of dimension {want}", "region.cells", region.cells)
         return chosen
-    if region.cell_set is not None:
-        sets = mesh.cell_sets or {}
-        if region.cell_set not in sets:
-            raise ReadFailure(f"no cell set {region.cell_set!r} (sets: {', '.join(sets) or 'none'})",
-                              "region.cell_set", region.cell_set)
-        return [(i, np.asarray(idx, dtype=np.int64)) for i, idx in enumerate(sets[region.cell_set])
-                if idx is not None and len(idx)]
     tags = mesh.cell_data.get(region.tag)
     if tags is None:
         raise ReadFailure(f"no cell-data array {region.tag!r} (cell data: {', '.join(mesh.cell_data) or 'none'})",
