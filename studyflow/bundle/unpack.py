@@ -12,6 +12,7 @@ from __future__ import annotations
 import os
 import posixpath
 import tarfile
+import zlib
 from dataclasses import dataclass
 from pathlib import Path, PurePosixPath
 
@@ -19,6 +20,8 @@ from ..errors import AuditError, UnsafePathError
 from ..fsutil import confined
 
 _HAS_FILTERS = hasattr(tarfile, "data_filter")
+# what a truncated or corrupted archive raises from the tar, gzip, bz2 and lzma readers
+_READ_ERRORS = (tarfile.TarError, OSError, EOFError, zlib.error)
 _FILTER_ERRORS: tuple[type[BaseException], ...] = (tarfile.FilterError,) if _HAS_FILTERS else ()
 
 
@@ -127,12 +130,12 @@ def safe_extract(archive: str | os.PathLike, target: str | os.PathLike) -> list[
     target = Path(target)
     try:
         tf = tarfile.open(archive, "r:*")
-    except (tarfile.TarError, OSError) as exc:
+    except _READ_ERRORS as exc:
         raise AuditError(f"{archive}: not a readable tar archive ({exc})") from exc
     with tf:
         try:
             members = tf.getmembers()
-        except (tarfile.TarError, OSError, EOFError) as exc:
+        except _READ_ERRORS as exc:
             raise AuditError(f"{archive}: the archive is damaged ({exc})") from exc
         refusals = check_members(members)
         if refusals:
@@ -152,5 +155,9 @@ def safe_extract(archive: str | os.PathLike, target: str | os.PathLike) -> list[
                     tf.extract(m, target)
             except _FILTER_ERRORS as exc:  # a second guard; the checks above should catch all
                 raise UnsafePathError(f"{archive}: archive entry {m.name!r} refused: {exc}") from exc
+            except (tarfile.TarError, EOFError, zlib.error) as exc:
+                raise AuditError(f"{archive}: the archive is damaged at entry {m.name!r} ({exc})") from exc
+            except OSError as exc:
+                raise AuditError(f"{target}: cannot unpack entry {m.name!r}: {exc.strerror or exc}") from exc
             names.append(name)
     return names

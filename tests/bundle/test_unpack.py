@@ -133,3 +133,18 @@ def test_audit_command_refuses_crafted_archive_with_exit_code(tmp_path: Path, ca
     out = json.loads(capsys.readouterr().out)
     assert out["verdict"] == "refused" and "'b/../../../escaped.txt'" in out["error"]
     assert sorted(os.listdir(tmp_path)) == ["evil.tar.gz"]
+
+
+def test_not_a_bundle_and_damaged_archive_are_clear_errors(tmp_path: Path) -> None:
+    from studyflow.bundle import audit
+    from studyflow.errors import EXIT_AUDIT_FAILED, AuditError
+
+    plain = _archive(tmp_path / "plain.tar.gz", [_file("x/readme.txt", b"hello")])
+    with pytest.raises(AuditError, match="no MANIFEST.json") as info:
+        audit(plain, into=tmp_path / "t1")
+    assert info.value.exit_code == EXIT_AUDIT_FAILED
+    damaged = tmp_path / "damaged.tar.gz"
+    damaged.write_bytes(plain.read_bytes()[:40])
+    with pytest.raises(AuditError, match="damaged.tar.gz"):
+        audit(damaged, into=tmp_path / "t2")
+    assert not (tmp_path / "t2").exists()
