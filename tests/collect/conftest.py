@@ -7,13 +7,9 @@ from typing import Any
 
 import pytest
 
-from studyflow.collect import check_quantities, read_quantity
-from studyflow.spec.quantities import QuantitySpec
+from collect_support import bind_one
 
-
-def bind_one(options: dict[str, Any], name: str = "q"):
-    spec = QuantitySpec.model_validate(options)
-    return check_quantities({name: spec}, file="study.yaml")[name]
+from studyflow.collect import read_quantity
 
 
 @pytest.fixture

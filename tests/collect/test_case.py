@@ -15,7 +15,7 @@ from studyflow.collect.check import Bound
 from studyflow.collect.readers.keyed import KeyedOptions
 from studyflow.collect import registry
 from studyflow.spec.quantities import QuantitySpec
-from tests.collect.conftest import bind_one
+from collect_support import bind_one
 
 
 @pytest.fixture

@@ -18,7 +18,7 @@ import numpy as np
 import pytest
 
 from studyflow.collect.readers.field import cell_measures
-from tests.collect.conftest import bind_one
+from collect_support import bind_one
 
 
 def unit_square(n: int, cell: str = "quad", with_top_edge: bool = False) -> meshio.Mesh:

@@ -10,7 +10,7 @@ import pytest
 
 from studyflow.collect.readers.keyed import parse_key
 from studyflow.errors import CollectError
-from tests.collect.conftest import bind_one
+from collect_support import bind_one
 
 METRICS = {"drag": {"cd": 0.0123, "cl": -0.5}, "stations": [{"x": 0.1, "cf": 3e-3}, {"x": 0.2, "cf": 2.5e-3},
                                                             {"x": 0.4, "cf": 2.0e-3}],

@@ -13,7 +13,7 @@ import pytest
 
 from studyflow.collect import registry, read_quantity
 from studyflow.errors import CollectError
-from tests.collect.conftest import bind_one
+from collect_support import bind_one
 
 PLUGIN = '''
 from pydantic import BaseModel, ConfigDict

@@ -10,7 +10,7 @@ import pytest
 
 from studyflow.collect import collect_study, read_results, write_tables
 from studyflow.collect import store
-from tests.collect.fakestudy import cases_of, good_outputs, make_study, write_case
+from collect_fakestudy import cases_of, good_outputs, make_study, write_case
 
 
 @pytest.fixture

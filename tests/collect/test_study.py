@@ -13,7 +13,7 @@ import pytest
 from studyflow.collect import collect_case, collect_study, read_results, write_tables
 from studyflow.collect.tables import CASES_TAIL, HISTORY_COLUMNS, RESULT_TAIL
 from studyflow.errors import CollectError
-from tests.collect.fakestudy import cases_of, good_outputs, make_study, write_case
+from collect_fakestudy import cases_of, good_outputs, make_study, write_case
 
 
 @pytest.fixture

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from studyflow.errors import CollectError
-from tests.collect.conftest import bind_one
+from collect_support import bind_one
 
 HISTORY = "iter,mass,momx\n1,1.0e-1,2.0e-1\n2,1.0e-3,2.0e-3\n3,1.0e-5,2.0e-5\n4,1.0e-7,3.0e-7\n"
 PROFILE = "# wall stations\nx;cf;y+\n0.1;3.0e-3;1.1\n0.2;2.5e-3;0.9\n0.4;2.0e-3;1.0\n"

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from studyflow.errors import CollectError
-from tests.collect.conftest import bind_one
+from collect_support import bind_one
 
 LOG = """solver start
 iter 1  residual 1.0e-02  CL = 0.30
