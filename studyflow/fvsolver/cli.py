@@ -1,0 +1,53 @@
+"""Command line of the bundled solver: ``studyflow-fv CASE.toml``.
+
+Exit codes: 0 converged; 2 bad command line; 3 bad case file; 4 iteration limit reached (not
+converged; every output still written); 5 diverged or non-finite (history and metrics kept);
+6 singular Jacobian.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+from . import __version__
+from .config import load
+from .errors import CaseFileError
+
+
+def main(argv: list[str] | None = None) -> int:
+    ap = argparse.ArgumentParser(prog="studyflow-fv",
+                                 description="Steady 2D incompressible laminar flow on a MAC mesh (Newton, central "
+                                             "differences). Writes fields, metrics and the residual history.")
+    ap.add_argument("case", help="case file (TOML)")
+    ap.add_argument("--version", action="version", version=f"studyflow-fv {__version__}")
+    ap.add_argument("--quiet", action="store_true", help="print only the final line")
+    args = ap.parse_args(argv)
+    try:
+        cfg = load(args.case)
+    except CaseFileError as exc:
+        print(f"studyflow-fv: {exc}", file=sys.stderr)
+        return exc.exit_code
+    from .run import solve, write
+
+    def log(line: str) -> None:
+        if not args.quiet:
+            print(line, flush=True)
+
+    print(f"studyflow-fv {__version__}: {cfg.kind} case, Re = {cfg.reynolds:g}, mesh {cfg.nx} x {cfg.ny}", flush=True)
+    result = solve(cfg, log)
+    folder = Path(args.case).resolve().parent
+    write(result, folder)
+    o = result.outcome
+    tail = f"{o.status}: {o.iterations} iterations, {result.metrics['factorisations']} LU, {result.wall_time:.2f} s"
+    if o.message:
+        tail += f" ({o.message})"
+    print(tail, flush=True)
+    if result.exit_code:
+        print(f"studyflow-fv: {o.status}: {o.message}", file=sys.stderr)
+    return result.exit_code
+
+
+if __name__ == "__main__":
+    sys.exit(main())
