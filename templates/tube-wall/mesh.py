@@ -66,29 +66,36 @@ def main() -> int:
     lc = float(cfg["lc"])
     gmsh.initialize(["mesh.py"], readConfigFiles=False)
     try:
-        gmsh.option.setNumber("General.Terminal", 1)
-        gmsh.option.setNumber("General.Verbosity", 2)  # errors and warnings only: keeps the log short
-        gmsh.option.setNumber("General.NumThreads", 1)
-        gmsh.model.add("tube_wall")
-        geo = gmsh.model.geo
-        centre = geo.addPoint(0.0, 0.0, 0.0, lc)
-        outer_loop, outer_arcs = circle(geo, centre, float(cfg["r_outer"]), lc)
-        inner_loop, inner_arcs = circle(geo, centre, float(cfg["r_inner"]), lc)
-        surface = geo.addPlaneSurface([outer_loop, inner_loop])
-        geo.synchronize()
-        gmsh.model.addPhysicalGroup(1, inner_arcs, tag=1, name="inner")
-        gmsh.model.addPhysicalGroup(1, outer_arcs, tag=2, name="outer")
-        gmsh.model.addPhysicalGroup(2, [surface], tag=3, name="wall")
-        gmsh.model.mesh.generate(2)
-        gmsh.option.setNumber("Mesh.MshFileVersion", 2.2)
-        gmsh.option.setNumber("Mesh.Binary", 0)
-        gmsh.write(OUTPUT)
-        _, element_tags, _ = gmsh.model.mesh.getElements(2)
-        triangles = sum(len(tags) for tags in element_tags)
+        triangles = build_and_write(gmsh, cfg, lc)
+    except Exception as exc:  # noqa: BLE001  gmsh reports its own failures as plain Exception
+        fail(f"gmsh could not mesh the wall (lc = {lc:g}): {exc}")
     finally:
         gmsh.finalize()
     print(f"mesh.py: lc = {lc:g}: {triangles} triangles written to {OUTPUT} (MSH 2.2)")
     return 0
+
+
+def build_and_write(gmsh, cfg: dict[str, float], lc: float) -> int:
+    """Mesh the annulus, write it, return the number of triangles."""
+    gmsh.option.setNumber("General.Terminal", 1)
+    gmsh.option.setNumber("General.Verbosity", 2)  # errors and warnings only: keeps the log short
+    gmsh.option.setNumber("General.NumThreads", 1)
+    gmsh.model.add("tube_wall")
+    geo = gmsh.model.geo
+    centre = geo.addPoint(0.0, 0.0, 0.0, lc)
+    outer_loop, outer_arcs = circle(geo, centre, float(cfg["r_outer"]), lc)
+    inner_loop, inner_arcs = circle(geo, centre, float(cfg["r_inner"]), lc)
+    surface = geo.addPlaneSurface([outer_loop, inner_loop])
+    geo.synchronize()
+    gmsh.model.addPhysicalGroup(1, inner_arcs, tag=1, name="inner")
+    gmsh.model.addPhysicalGroup(1, outer_arcs, tag=2, name="outer")
+    gmsh.model.addPhysicalGroup(2, [surface], tag=3, name="wall")
+    gmsh.model.mesh.generate(2)
+    gmsh.option.setNumber("Mesh.MshFileVersion", 2.2)
+    gmsh.option.setNumber("Mesh.Binary", 0)
+    gmsh.write(OUTPUT)
+    _, element_tags, _ = gmsh.model.mesh.getElements(2)
+    return sum(len(tags) for tags in element_tags)
 
 
 if __name__ == "__main__":
