@@ -109,7 +109,7 @@ def history_files(raw: dict[str, Any]) -> set[str]:
     return out
 
 
-def role_of(study_rel_path: PurePosixPath, raw: dict[str, Any], fields: set[str], histories: set[str]) -> str:
+def role_of(study_rel_path: PurePosixPath, fields: set[str], histories: set[str]) -> str:
     """The role of a file of the study folder, by where it is (DEVELOPERS.md folder layout)."""
     parts = study_rel_path.parts
     if len(parts) == 1:
@@ -147,8 +147,13 @@ class Member:
     role: str
 
 
-def select(layout: StudyLayout, fields: bool = True) -> tuple[list[Member], list[dict[str, str]]]:
-    """Every file of the study and template folders to ship, and the ones left out with why."""
+def select(layout: StudyLayout, fields: bool = True,
+           inputs: set[str] | None = None) -> tuple[list[Member], list[dict[str, str]]]:
+    """Every file of the study and template folders to ship, and the ones left out with why.
+
+    ``inputs``: paths inside the study folder (``cases/<id>/<file>``) that rendering makes; they
+    get the role ``case-input``."""
+    inputs = inputs or set()
     members: list[Member] = []
     skipped: list[dict[str, str]] = []
     fset, hset = field_files(layout.raw), history_files(layout.raw)
@@ -194,7 +199,9 @@ def select(layout: StudyLayout, fields: bool = True) -> tuple[list[Member], list
             full = layout.study_dir / rel
             if template_dir in full.parents:
                 return "template"
-        return role_of(rel, layout.raw, fset, hset)
+        if rel.as_posix() in inputs:
+            return "case-input"
+        return role_of(rel, fset, hset)
 
     walk(layout.study_dir, study_prefix, study_role)
     if template_dir is not None and not inside:

@@ -208,17 +208,31 @@ def pack(study: str | os.PathLike, archive: str | os.PathLike | None = None, *, 
 
     layout = locate(study)
     # a bundle is only worth sending if its study file loads and its audit block is valid
-    load_study(layout.study_file)
+    spec = load_study(layout.study_file)
     settings_from(layout.raw.get("audit"), str(layout.study_file))
+    inputs = _rendered_inputs(spec)
     # no run may change the study while it is read: hold the study's run lock (StudyBusyError
     # when a run is going)
     with RunLock(layout.study_dir / ".studyflow"):
-        return _pack_locked(layout, archive, fields, compresslevel)
+        return _pack_locked(layout, archive, fields, compresslevel, inputs)
+
+
+def _rendered_inputs(study: Any) -> set[str]:
+    """The files rendering makes (``cases/<id>/<file>``), to label them in the manifest. Rendered
+    in memory only; a study that does not render now is packed anyway (the audit will say why)."""
+    from ..design import build_design
+    from ..render import render_all
+
+    try:
+        rendered = render_all(study, build_design(study))
+    except StudyflowError:
+        return set()
+    return {f"cases/{rc.case.id}/{rel}" for rc in rendered for rel in rc.files}
 
 
 def _pack_locked(layout: StudyLayout, archive: str | os.PathLike | None, fields: bool,
-                 compresslevel: int) -> PackResult:
-    members, skipped = select(layout, fields=fields)
+                 compresslevel: int, inputs: set[str]) -> PackResult:
+    members, skipped = select(layout, fields=fields, inputs=inputs)
     out = Path(archive) if archive is not None else layout.study_dir.parent / default_archive_name(layout)
     out = out.resolve()
     entries: list[FileEntry] = []

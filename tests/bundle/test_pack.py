@@ -46,6 +46,9 @@ def test_bundle_keeps_template_position_and_hashes(toy, tmp_path: Path) -> None:
         assert f["sha256"] == hashlib.sha256(blob).hexdigest() and f["size"] == len(blob)
     assert listed["payload/studies/toy/cases/k1--m0/fields.vtu"]["role"] == "field"
     assert listed["payload/studies/toy/study.yaml"]["role"] == "study-file"
+    # the rendered template output is told apart from the case's other files
+    assert listed["payload/studies/toy/cases/k1--m0/case.txt"]["role"] == "case-input"
+    assert listed["payload/studies/toy/cases/k1--m0/.studyflow/case.json"]["role"] == "case-state"
     # fixed owner and one timestamp for every member
     assert {(m.uid, m.gid, m.uname, m.gname) for m in members.values()} == {(0, 0, "", "")}
     assert len({m.mtime for m in members.values()}) == 1
