@@ -287,7 +287,7 @@ def _cells_quantity(info: StudyInfo) -> str | None:
 
 
 def _write(path: Path, record: CaseRecord) -> None:
-    data = (json.dumps(record.to_dict(), sort_keys=True, allow_nan=False, default=str) + "\n").encode("utf-8")
+    data = (json.dumps(record.to_dict(), sort_keys=True, default=str) + "\n").encode("utf-8")
     try:
         if path.stat().st_size == len(data) and path.read_bytes() == data:
             return

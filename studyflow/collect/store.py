@@ -1,6 +1,6 @@
 """Writing the study's tables into ``<study>/results/`` and reading them back.
 
-Every file is serialised in memory first and then written with ``fsutil.atomic_write_bytes``, so
+Every file is serialised in memory first and then written with ``fsutil.atomic_write_many``, so
 a reader (or a crash) sees each table whole, old or new, never half of one.
 """
 
@@ -13,7 +13,7 @@ from pathlib import Path
 import pandas as pd
 
 from ..errors import CollectError, Problem
-from ..fsutil import atomic_write_bytes
+from ..fsutil import atomic_write_many
 from .tables import ResultTables
 
 RESULTS_DIR = "results"
@@ -52,8 +52,8 @@ def write_tables(study_dir: str | os.PathLike, tables: ResultTables) -> dict[str
     for name in paths:  # serialise everything first: a conversion error then touches no file
         stem, ext = name.split(".")
         blobs[name] = _parquet_bytes(frames[stem]) if ext == "parquet" else _csv_bytes(frames[stem])
-    for name, path in paths.items():
-        atomic_write_bytes(path, blobs[name])
+    # One set: a full disk while writing any of them leaves the old set whole, not a mix.
+    atomic_write_many({path: blobs[name] for name, path in paths.items()})
     return paths
 
 
