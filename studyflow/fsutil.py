@@ -34,6 +34,35 @@ def atomic_write_bytes(path: str | os.PathLike, data: bytes) -> None:
         raise
 
 
+def atomic_write_many(files: "dict[str | os.PathLike, bytes]") -> None:
+    """Replace several files as one set: all of them are written to temporary files (flushed to
+    disk) first, and renamed over their targets only when every one was written.
+
+    A failure while writing (disk full) removes the temporary files and leaves every target as it
+    was, so readers never see some files of the new set beside others of the old one.
+    """
+    staged: list[tuple[str, Path]] = []
+    try:
+        for target, data in files.items():
+            path = Path(target)
+            path.parent.mkdir(parents=True, exist_ok=True)
+            fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+            staged.append((tmp, path))
+            with os.fdopen(fd, "wb") as fh:
+                fh.write(data)
+                fh.flush()
+                os.fsync(fh.fileno())
+        for tmp, path in staged:
+            os.replace(tmp, path)
+    except BaseException:
+        for tmp, _ in staged:
+            try:
+                os.unlink(tmp)
+            except FileNotFoundError:
+                pass
+        raise
+
+
 def atomic_write_text(path: str | os.PathLike, text: str) -> None:
     atomic_write_bytes(path, text.encode("utf-8"))
 

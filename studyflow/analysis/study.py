@@ -10,7 +10,7 @@ from pathlib import Path
 import pandas as pd
 
 from ..collect import read_results
-from ..fsutil import atomic_write_bytes
+from ..fsutil import atomic_write_many
 from ..spec import Study, load_study
 from .iterative import residual_summary
 from .table import assess
@@ -39,9 +39,8 @@ def write_uncertainty(study_dir: str | os.PathLike, table: pd.DataFrame) -> tupl
     buf = io.BytesIO()
     table.to_parquet(buf, index=False, engine="pyarrow")
     paths = (out / "uncertainty.csv", out / "uncertainty.parquet")
-    # Serialise both first, so a failure in either writes neither.
-    atomic_write_bytes(paths[0], csv)
-    atomic_write_bytes(paths[1], buf.getvalue())
+    # Serialise both first, so a failure in either writes neither; replace them as one set.
+    atomic_write_many({paths[0]: csv, paths[1]: buf.getvalue()})
     return paths
 
 
