@@ -130,3 +130,23 @@ def check_scheduler(settings: ClusterSettings) -> SchedulerInfo:
                 raise WorkflowError(f"cluster.partition {wanted!r} is not a partition of this cluster "
                                     f"(sinfo lists: {', '.join(sorted(names)) or 'none'})")
     return SchedulerInfo(version, accounting, min_age, command)
+
+
+def check_requests(requests: list[list[str]]) -> None:
+    """Ask the scheduler whether it would accept each job (``sbatch --test-only``: nothing is
+    submitted). A job the cluster refuses (no such partition, more cores or memory than a node
+    has, a wall time over the partition's limit) fails here with the scheduler's words, instead of
+    at submission, where the plugin's error leaves Snakemake waiting."""
+    for flags in requests:
+        argv = ["sbatch", "--test-only", "--output", "/dev/null", *flags, "--wrap", "true"]
+        try:
+            done = subprocess.run(argv, capture_output=True, text=True, timeout=QUERY_TIMEOUT_S, check=False)
+        except subprocess.TimeoutExpired:
+            raise WorkflowError(f"the SLURM controller did not answer sbatch --test-only within "
+                                f"{QUERY_TIMEOUT_S} s") from None
+        if done.returncode != 0:
+            words = " ".join(line.strip() for line in (done.stderr or done.stdout).splitlines() if line.strip())
+            raise WorkflowError(
+                f"SLURM would refuse the study's jobs (sbatch {' '.join(flags)}): {words or 'no message'}. "
+                "Check resources (cores, memory_mb, time_min), cluster.batch x time_min against the "
+                "partition's time limit, and cluster.partition/account/qos/sbatch in study.yaml")

@@ -22,6 +22,7 @@ cluster.sbatch         ``slurm_extra``                        as given
 from __future__ import annotations
 
 import math
+import shlex
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -113,6 +114,8 @@ def profile_content(study: Study, settings: ClusterSettings, scheduler: Schedule
     content["slurm-init-seconds-before-status-checks"] = settings.first_check_s
     if not settings.account:
         content["slurm-no-account"] = True
+    if settings.qos:
+        content["slurm-qos"] = settings.qos
     content["set-threads"] = {rule_name(s): int(s.cores or study.resources.cores) for s in study.steps}
     content["set-resources"] = {rule_name(s): step_resources(study, s, settings) for s in study.steps}
     content.update(settings.options)
@@ -141,3 +144,35 @@ def write_profile(study: Study, settings: ClusterSettings,
     args = ("--profile", str(folder), "--cores", str(content["cores"]),
             "--latency-wait", str(content["latency-wait"]))
     return ClusterRun(folder, args, config, settings, scheduler, content)
+
+
+def job_requests(study: Study, settings: ClusterSettings) -> list[list[str]]:
+    """The sbatch resource flags of the jobs a run will submit (one per step, or one batch).
+
+    A batch asks for its largest step's cores and memory and the sum of its cases' wall times
+    (Snakemake's layering of a group, see ``batch_cores``).
+    """
+    per_step = [step_resources(study, s, settings) for s in study.steps]
+
+    def flags(cpus: int, mem: int | None, minutes: int | None) -> list[str]:
+        out = ["--cpus-per-task", str(cpus)]
+        if mem:
+            out += ["--mem", str(mem)]
+        if minutes:
+            out += ["-t", str(minutes)]
+        if settings.partition:
+            out += ["-p", settings.partition.split(",")[0]]
+        if settings.account:
+            out += ["-A", settings.account]
+        if settings.qos:
+            out += [f"--qos={settings.qos}"]
+        if settings.sbatch:
+            out += shlex.split(settings.sbatch)
+        return out
+
+    if settings.batch:
+        mems = [r["mem_mb"] for r in per_step if "mem_mb" in r]
+        times = [r.get("runtime") for r in per_step]
+        total = settings.batch * sum(t for t in times if t) if any(times) else None
+        return [flags(batch_cores(study), max(mems) if mems else None, total)]
+    return [flags(r["cpus_per_task"], r.get("mem_mb"), r.get("runtime")) for r in per_step]

@@ -10,8 +10,8 @@ from ..errors import Problem, StudySpecError, WorkflowError
 from ..spec.model import Study
 from ..workflow.driver import EngineOptions
 from .outcome import finish_cluster_run
-from .profile import ClusterRun, write_profile
-from .preflight import check_scheduler
+from .profile import ClusterRun, job_requests, write_profile
+from .preflight import check_requests, check_scheduler
 from .settings import EXECUTORS, cluster_settings
 
 
@@ -29,6 +29,8 @@ def cluster_options(study: Study, options: EngineOptions, executor: str = "slurm
         raise StudySpecError(Problem(str(study.file), "cluster.executor", settings.executor,
                                      f"the study is set up for {settings.executor}, but the run asks for {executor}"))
     scheduler = check_scheduler(settings) if check else None
+    if check:
+        check_requests(job_requests(study, settings))
     run = write_profile(study, settings, scheduler)
     previous = options.after_engine
 

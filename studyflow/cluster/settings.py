@@ -12,13 +12,15 @@ cluster:
   jobs: 100               # scheduler jobs queued or running at once
   status_command: squeue  # squeue or sacct; omitted: sacct when accounting is on, else squeue
   first_check_s: 40       # seconds before the first status poll of a job
-  sbatch: "--qos=short"   # further sbatch flags for every job
+  qos: normal             # sbatch --qos; leave out for the default
+  sbatch: "--exclusive"   # further sbatch flags for every job (not those studyflow sets)
   options: {}             # further Snakemake profile keys, written into the profile as given
 ```
 """
 
 from __future__ import annotations
 
+import re
 from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
@@ -37,6 +39,24 @@ RESERVED_OPTIONS = frozenset({
 })
 
 
+# sbatch flags snakemake-executor-plugin-slurm 2.8.0 manages itself (validation.py,
+# get_forbidden_slurm_options); a copy, so the check works without the plugin installed.
+SBATCH_SET_BY_PLUGIN = {
+    r"--job-name[=\s]|(^|\s)-J": "job name", r"--output[=\s]|(^|\s)-o\s": "output file",
+    r"--error[=\s]|(^|\s)-e\s": "error file", r"--parsable": "parsable output",
+    r"--export[=\s]": "environment export", r"--comment[=\s]": "job comment",
+    r"--workdir[=\s]|--chdir[=\s]|(^|\s)-D\s": "working directory",
+    r"--account[=\s]|(^|\s)-A\s": "account (use cluster.account)",
+    r"--partition[=\s]|(^|\s)-p\s": "partition (use cluster.partition)",
+    r"--mem[=\s]|--mem-per-cpu[=\s]": "memory (use memory_mb)",
+    r"--ntasks[=\s]|(^|\s)-n\s|--ntasks-per-gpu[=\s]": "number of tasks",
+    r"--cpus-per-task[=\s]|(^|\s)-c\s|--cpus-per-gpu[=\s]": "CPUs per task (use cores)",
+    r"--time[=\s]|(^|\s)-t\s": "time limit (use time_min)", r"--constraint[=\s]|(^|\s)-C\s": "node constraints",
+    r"--qos[=\s]": "quality of service (use cluster.qos)", r"--nodes[=\s]|(^|\s)-N\s": "number of nodes",
+    r"--clusters[=\s]": "cluster", r"--gres[=\s]|--gpus[=\s]": "GPUs",
+}
+
+
 class ClusterSettings(BaseModel):
     model_config = ConfigDict(extra="forbid", frozen=True)
 
@@ -44,6 +64,7 @@ class ClusterSettings(BaseModel):
     batch: int | None = Field(None, ge=1, le=100_000)
     partition: str | None = Field(None, min_length=1, pattern=r"^[A-Za-z0-9_.,-]+$")
     account: str | None = Field(None, min_length=1, pattern=r"^[A-Za-z0-9_.,-]+$")
+    qos: str | None = Field(None, min_length=1, pattern=r"^[A-Za-z0-9_.,-]+$")
     jobs: int = Field(100, ge=1, le=100_000)
     status_command: Literal["squeue", "sacct"] | None = None
     first_check_s: int = Field(40, ge=1, le=3600)
@@ -61,8 +82,16 @@ class ClusterSettings(BaseModel):
     @field_validator("sbatch")
     @classmethod
     def _sbatch(cls, v: str | None) -> str | None:
-        if v is not None and ("\n" in v or not v.strip()):
+        if v is None:
+            return v
+        if "\n" in v or not v.strip():
             raise ValueError("must be one line of sbatch flags")
+        # The plugin sets these flags itself and refuses a job that repeats them, at submission,
+        # in a way that leaves Snakemake waiting; so they are refused here, before anything runs.
+        for pattern, what in SBATCH_SET_BY_PLUGIN.items():
+            if re.search(pattern, v):
+                raise ValueError(f"sets the {what}, which comes from the study's resources/cluster keys "
+                                 "or the executor; remove it")
         return v
 
 

@@ -41,3 +41,15 @@ def test_batch_is_checked_by_the_study_schema(tmp_path):
     with pytest.raises(StudySpecError) as info:
         _study(tmp_path, {"batch": 0})
     assert any(p.key == "cluster.batch" for p in info.value.problems)
+
+
+def test_sbatch_flags_the_plugin_sets_itself_are_refused(tmp_path):
+    # The plugin refuses these in slurm_extra (snakemake-executor-plugin-slurm 2.8.0,
+    # validation.py get_forbidden_slurm_options) only when it submits, so they are caught here.
+    for flags, word in (("--qos=low", "cluster.qos"), ("-p short", "cluster.partition"),
+                        ("--mem=4G", "memory_mb"), ("-t 10", "time_min")):
+        with pytest.raises(StudySpecError) as info:
+            cluster_settings(_study(tmp_path, {"sbatch": flags}))
+        (problem,) = info.value.problems
+        assert problem.key == "cluster.sbatch" and problem.value == flags and word in problem.message
+    assert cluster_settings(_study(tmp_path, {"sbatch": "--exclusive --mail-type=FAIL"})).sbatch
