@@ -170,12 +170,13 @@ def _environment(root: Path, shipped_env: dict[str, Any], report: AuditReport) -
 
 def audit(source: str | Path, *, into: str | Path | None = None, rerun: RerunChoice = RerunChoice(),
           scratch: str | Path | None = None, keep_scratch: bool = False, jobs: int = 1,
-          engine: str = "workflow") -> AuditReport:
+          engine: str = "workflow", manifest_sha256: str | None = None) -> AuditReport:
     """Audit a bundle archive (unpacked safely into ``into``) or an unpacked bundle folder.
 
     Raises ``UnsafePathError`` when the archive is refused (nothing is written then) and
     ``AuditError`` when the source is not a bundle at all; every other finding goes into the
-    report, whose ``exit_code`` is the command's exit code.
+    report, whose ``exit_code`` is the command's exit code. ``manifest_sha256``: the digest the
+    packer printed, sent separately; a different manifest fails the audit.
     """
     from . import replay  # the re-render / re-run machinery needs the lower layers only on demand
 
@@ -201,6 +202,10 @@ def audit(source: str | Path, *, into: str | Path | None = None, rerun: RerunCho
     manifest = Manifest.load(root)
     report.study = manifest.study_name
     report.manifest_sha256 = sha256_file(root / MANIFEST_NAME)
+    if manifest_sha256 is not None and manifest_sha256.strip().lower() != report.manifest_sha256:
+        # the one check a forger who rewrote files and manifest together cannot pass
+        report.failures.append(f"manifest digest {report.manifest_sha256} is not the expected "
+                               f"{manifest_sha256.strip().lower()}: the manifest itself was changed")
     shipped_env = _load_env(root)
 
     _integrity(root, manifest, report)

@@ -48,6 +48,8 @@ def register(subparsers: Any) -> None:
                    help="re-run through the workflow engine like 'run' (default), or 'direct': each case's "
                         "steps in turn with the same step runner, quicker for a few cases")
     a.add_argument("--keep-scratch", action="store_true", help="keep the temporary scratch folder")
+    a.add_argument("--manifest-sha256", metavar="HEX",
+                   help="the manifest digest 'pack' printed, received separately; a different manifest fails")
     a.add_argument("--json", action="store_true", help="print the full report as JSON")
     a.set_defaults(handler=run_audit)
 
@@ -75,7 +77,8 @@ def _choice(args: argparse.Namespace) -> RerunChoice:
 def run_audit(args: argparse.Namespace) -> int:
     try:
         report = audit(args.source, into=args.into, rerun=_choice(args), scratch=args.scratch,
-                       keep_scratch=args.keep_scratch, jobs=max(1, args.jobs), engine=args.engine)
+                       keep_scratch=args.keep_scratch, jobs=max(1, args.jobs), engine=args.engine,
+                       manifest_sha256=args.manifest_sha256)
     except UnsafePathError as exc:
         if not args.json:
             raise

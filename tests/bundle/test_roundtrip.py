@@ -134,5 +134,12 @@ def test_consistently_forged_uncertainty_is_caught_by_recomputation(packed_toy, 
     report = audit(root)
     assert report.phases["integrity"].ok
     assert not report.phases["uncertainty"].ok and report.exit_code == EXIT_AUDIT_FAILED
+    # and the digest the packer sent separately no longer matches the rewritten manifest
+    import tarfile
+
+    with tarfile.open(packed_toy.archive) as tf:
+        sent = hashlib.sha256(tf.extractfile("toy-bundle/MANIFEST.json").read()).hexdigest()
+    report = audit(root, manifest_sha256=sent)
+    assert any(f.startswith("manifest digest") and sent in f for f in report.failures)
     diffs = report.phases["uncertainty"].detail["comparison"]["differences"]
     assert [(d["row"]["point"], d["row"]["quantity"], d["column"]) for d in diffs] == [("k2.5", "drag", "U")]
