@@ -182,3 +182,15 @@ def test_field_options_checked() -> None:
         with pytest.raises(CollectError) as err:
             bind_one({"from": "field", "file": "f.vtu", **options})
         assert message in str(err.value), str(err.value)
+
+
+def test_cell_data_chosen_explicitly_and_probed(case: Path) -> None:
+    from studyflow.collect import read_quantity
+
+    # A probe in cell data gives the value of the cell holding the point: the centre of the
+    # 4x4 quad at (0.3, 0.7) is (0.375, 0.625), so x*y there is 0.234375 (arithmetic).
+    assert value(case, file="fields.vtu", array="fc", data="cell", probe=[0.3, 0.7]).final == \
+        pytest.approx(0.375 * 0.625, abs=1e-12)
+    r = read_quantity(case, bind_one({"from": "field", "file": "fields.vtu", "array": "fc", "data": "point",
+                                      "operation": "mean"}))
+    assert r.reason.startswith("fields.vtu: array: no point-data array 'fc'")

@@ -113,3 +113,10 @@ def test_bad_options_name_key_path_and_value() -> None:
         bind_one({"from": "json", "file": "m.json", "kye": "a"}, name="drag")
     assert "study.yaml: quantities.drag.key: Field required (got None)" in str(err.value)
     assert "study.yaml: quantities.drag.kye: unknown option for collector 'json' (got 'a')" in str(err.value)
+
+
+def test_yaml_non_finite_literals_are_failures(read) -> None:
+    # YAML 1.1 spells NaN and infinity .nan and .inf; they must be reported like JSON's NaN.
+    files = {"o.yaml": "cd: .nan\ncl: -.inf\n"}
+    assert read({"from": "yaml", "file": "o.yaml", "key": "cd"}, files).reason == "o.yaml: cd: non-finite value (got nan)"
+    assert read({"from": "yaml", "file": "o.yaml", "key": "cl"}).reason == "o.yaml: cl: non-finite value (got -inf)"
