@@ -104,13 +104,18 @@ class _Builder:
         return ff
 
     # --- quantities --------------------------------------------------------------------------------
+    def result_quantities(self, res: pd.DataFrame) -> list[str]:
+        """Quantities that get a section: not histories, residuals or the cell count behind h."""
+        skip = set(self.data.settings.not_results)
+        return [q for q in dict.fromkeys(res["quantity"].astype(str)) if q not in skip]
+
     def quantity_sections(self) -> list[dict[str, Any]]:
         data, res = self.data, self.data.results
         if res is None or res.empty:
             return []
         sections = []
         formal = data.settings.formal_order
-        for quantity in dict.fromkeys(res["quantity"].astype(str)):
+        for quantity in self.result_quantities(res):
             rows = res[res["quantity"].astype(str) == quantity]
             kind = str(rows["kind"].iloc[0])
             unit = _unit(data, quantity)
@@ -166,7 +171,7 @@ class _Builder:
         scalars = res[res["kind"].astype(str) != "profile"]
         swept_params = swept(scalars, params)
         out = []
-        for quantity in dict.fromkeys(scalars["quantity"].astype(str)):
+        for quantity in self.result_quantities(scalars):
             unit = _unit(data, quantity)
             for p in swept_params:
                 others = [o for o in swept_params if o != p]
@@ -207,7 +212,8 @@ class _Builder:
             rows = done[done["point"].astype(str) == point].sort_values("level")
             states = [self.data.cases.get(str(c)) for c in rows["case"]]
             states = [s for s in states if s is not None and s.folder is not None]
-            files = [(s, fieldpics.find_field_file(s.folder, self.data.settings.field_files)) for s in states]
+            declared = self.data.settings.field_files + self.data.settings.mesh_files
+            files = [(s, fieldpics.find_mesh_file(s.folder, declared)) for s in states]
             files = [(s, f) for s, f in files if f is not None]
             if files:
                 return files[-1], files
@@ -216,7 +222,7 @@ class _Builder:
     def fields(self, table: pd.DataFrame) -> tuple[str, list[FigureFile], list[str]]:
         finest, family = self.field_case(table)
         if finest is None:
-            return "", [], ["No finished case has a field file (VTU, VTK, XDMF) to draw."]
+            return "", [], ["No finished case has a field or mesh file (VTU, VTK, XDMF, gmsh MSH) to draw."]
         state, path = finest
         notes: list[str] = []
         try:
@@ -224,6 +230,8 @@ class _Builder:
         except Exception as exc:  # meshio raises many reader-specific types
             return state.case, [], [f"The field file {path.name} of {state.case} could not be read: {exc}"]
         arrays = fieldpics.choose_arrays(mesh)
+        if not arrays:
+            notes.append(f"{path.name} of {state.case} holds a mesh but no field arrays: no field pictures.")
         jobs = [fieldpics.PictureJob(path, name, assoc, self.figdir / f"field-{slug(name)}.png",
                                      name) for name, assoc in arrays]
         self.figdir.mkdir(parents=True, exist_ok=True)

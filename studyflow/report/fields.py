@@ -17,12 +17,13 @@ from pathlib import Path
 
 import numpy as np
 from matplotlib.collections import PolyCollection
+from matplotlib.patches import Rectangle
 from matplotlib.figure import Figure
 from matplotlib.tri import Triangulation
 
 from . import style
 from .figures.common import new_figure
-from .settings import FIELD_SUFFIXES
+from .settings import FIELD_SUFFIXES, MESH_SUFFIXES
 
 MAX_ARRAYS = 4
 MAX_DRAWN_CELLS = 60_000  # above this, the mesh drawing shows the outline only
@@ -39,23 +40,32 @@ class PictureJob:
     title: str
 
 
-def find_field_file(folder: Path, declared: tuple[str, ...]) -> Path | None:
+def find_field_file(folder: Path, declared: tuple[str, ...], suffixes: tuple[str, ...] = FIELD_SUFFIXES) -> Path | None:
     """The case's field file: the first declared one that exists, else the first field-like file found."""
     for rel in declared:
         path = folder / rel
-        if path.is_file():
+        if path.is_file() and path.suffix.lower() in suffixes:
             return path
     for pattern in ("*", "*/*"):
         for path in sorted(folder.glob(pattern)):
-            if path.suffix.lower() in FIELD_SUFFIXES and path.is_file() and ".studyflow" not in path.parts:
+            if path.suffix.lower() in suffixes and path.is_file() and ".studyflow" not in path.parts:
                 return path
     return None
 
 
+def find_mesh_file(folder: Path, declared: tuple[str, ...]) -> Path | None:
+    """A file holding the case's mesh: a field file, else a mesh-only file (gmsh)."""
+    return find_field_file(folder, declared, FIELD_SUFFIXES) or find_field_file(folder, declared, MESH_SUFFIXES)
+
+
 def read_mesh(path: Path):
+    import contextlib
+    import io
+
     import meshio
 
-    return meshio.read(str(path))
+    with contextlib.redirect_stdout(io.StringIO()):  # meshio's gmsh reader prints blank lines
+        return meshio.read(str(path))
 
 
 def choose_arrays(mesh) -> list[tuple[str, str]]:
@@ -163,28 +173,59 @@ def fallback_picture(mesh, array: str, association: str, title: str) -> Figure:
     return fig
 
 
+def detail_window(pts: np.ndarray, fraction: float = 0.2) -> tuple[float, float, float, float]:
+    """A square window, ``fraction`` of the mesh's larger extent wide, around the mesh point nearest
+    to the lower-left quarter point of its bounding box (inside the domain even for a ring)."""
+    lo, hi = pts.min(axis=0), pts.max(axis=0)
+    target = lo + 0.25 * (hi - lo)
+    centre = pts[int(np.argmin(((pts - target) ** 2).sum(axis=1)))]
+    half = 0.5 * fraction * float(max(hi - lo))
+    return centre[0] - half, centre[0] + half, centre[1] - half, centre[1] + half
+
+
+def _draw_mesh(ax, pts: np.ndarray, polys: list[np.ndarray]) -> None:
+    for cells in polys:
+        ax.add_collection(PolyCollection(pts[cells], facecolors="none", edgecolors=style.LEVEL_RAMP[3],
+                                         linewidths=0.35))
+
+
 def mesh_family(meshes: list[tuple[str, object]]) -> Figure:
-    """The meshes of one point, coarse to fine, side by side at the same scale."""
-    fig, axes = new_figure(len(meshes), ncols=min(3, len(meshes)), panel_size=(3.6, 2.6))
-    for ax, (title, mesh) in zip(axes, meshes):
+    """The meshes of one point, coarse to fine: each whole (top row) and the same small window of each
+    (bottom row, marked on the top row) so the refinement stays visible when the whole mesh is a blur."""
+    n = len(meshes)
+    fig, axes = new_figure(2 * n, ncols=n, panel_size=(3.0, 2.5) if n > 2 else (3.6, 2.8))
+    window = None
+    for i, (title, mesh) in enumerate(meshes):
+        ax, detail = axes[i], axes[n + i]
         pts, polys, blocks = _surface(mesh)
-        ncells = sum(n for _, _, n in blocks)
+        ncells = sum(k for _, _, k in blocks)
         ax.set_title(f"{title}: {ncells} cells", loc="left")
-        ax.set_aspect("equal")
-        ax.grid(False)
-        ax.set_xlabel("x")
-        ax.set_ylabel("y")
+        for a in (ax, detail):
+            a.set_aspect("equal")
+            a.grid(False)
+            a.set_xlabel("x")
+            a.set_ylabel("y")
         if not polys:
             ax.plot(pts[:, 0], pts[:, 1], ",", color=style.INK)
+            detail.remove()
             continue
+        if window is None:
+            window = detail_window(pts)
+        x0, x1, y0, y1 = window
         if ncells > MAX_DRAWN_CELLS:
             lo, hi = pts.min(axis=0), pts.max(axis=0)
             ax.plot([lo[0], hi[0], hi[0], lo[0], lo[0]], [lo[1], lo[1], hi[1], hi[1], lo[1]], color=style.INK)
             ax.text(0.5, 0.5, "too many cells to draw;\noutline only", transform=ax.transAxes, ha="center",
                     va="center", fontsize=8, color=style.PENDING)
-            continue
-        for cells in polys:
-            ax.add_collection(PolyCollection(pts[cells], facecolors="none", edgecolors=style.LEVEL_RAMP[3],
-                                             linewidths=0.35))
+            # the window still shows the cells: keep only those with a vertex inside it
+            inside = (pts[:, 0] >= x0) & (pts[:, 0] <= x1) & (pts[:, 1] >= y0) & (pts[:, 1] <= y1)
+            _draw_mesh(detail, pts, [c[inside[c].any(axis=1)] for c in polys])
+        else:
+            _draw_mesh(ax, pts, polys)
+            _draw_mesh(detail, pts, polys)
         ax.autoscale_view()
+        ax.add_patch(Rectangle((x0, y0), x1 - x0, y1 - y0, fill=False, edgecolor=style.ACCENT, lw=1.0))
+        detail.set_xlim(x0, x1)
+        detail.set_ylim(y0, y1)
+        detail.set_title(f"{title}: detail", loc="left", fontweight="normal")
     return fig

@@ -54,13 +54,17 @@ class ReportSettings:
     tolerance: float | None = None
     steps: list[str] = field(default_factory=list)
     field_files: tuple[str, ...] = ()
+    mesh_files: tuple[str, ...] = ()
     units: dict[str, str] = field(default_factory=dict)
     solver: str | None = None
     references: dict[str, Reference] = field(default_factory=dict)
     max_points: int = 12
+    # quantities that are not results to assess: histories, residuals, the cell count behind h
+    not_results: tuple[str, ...] = ()
 
 
 FIELD_SUFFIXES = (".vtu", ".vtk", ".vtp", ".vts", ".vtr", ".xdmf", ".xmf")
+MESH_SUFFIXES = FIELD_SUFFIXES + (".msh",)  # a gmsh mesh has no fields but draws the mesh family
 
 
 def _float(value: Any) -> float | None:
@@ -86,10 +90,13 @@ def load_settings(root: Path) -> ReportSettings:
     steps = [s for s in (doc.get("steps") or []) if isinstance(s, dict)]
     quantities = doc.get("quantities") or {}
     field_files: list[str] = []
+    mesh_files: list[str] = []
     for s in steps:
         for w in s.get("writes") or []:
             if isinstance(w, str) and w.lower().endswith(FIELD_SUFFIXES) and w not in field_files:
                 field_files.append(w)
+            if isinstance(w, str) and w.lower().endswith(MESH_SUFFIXES) and w not in mesh_files:
+                mesh_files.append(w)
     for q in quantities.values() if isinstance(quantities, dict) else []:
         f = q.get("file") if isinstance(q, dict) else None
         if isinstance(f, str) and f.lower().endswith(FIELD_SUFFIXES) and f not in field_files:
@@ -98,6 +105,12 @@ def load_settings(root: Path) -> ReportSettings:
         if isinstance(quantities, dict) else {}
     residuals = iteration.get("residuals") or []
     constants = doc.get("constants") or {}
+    mesh = doc.get("mesh") if isinstance(doc.get("mesh"), dict) else {}
+    not_results = [str(k) for k, v in (quantities.items() if isinstance(quantities, dict) else [])
+                   if isinstance(v, dict) and v.get("series")]
+    not_results += [str(r) for r in residuals if isinstance(r, str)] if isinstance(residuals, list) else []
+    if isinstance(mesh.get("cells_from"), str):
+        not_results.append(mesh["cells_from"])
     report = doc.get("report") or {}
     problems: list[Problem] = []
     if not isinstance(report, dict):
@@ -124,10 +137,12 @@ def load_settings(root: Path) -> ReportSettings:
         tolerance=_float(iteration.get("tolerance")),
         steps=[str(s.get("name")) for s in steps if s.get("name")],
         field_files=tuple(field_files),
+        mesh_files=tuple(mesh_files),
         units=units,
         solver=str(constants.get("solver")) if constants.get("solver") else None,
         references=refs,
         max_points=max_points,
+        not_results=tuple(dict.fromkeys(not_results)),
     )
 
 

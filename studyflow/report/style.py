@@ -23,7 +23,7 @@ BAD = "#a33a3a"
 PENDING = "#7a8693"
 
 # One colour per mesh level, coarse (light) to fine (dark), so the refinement reads as a ramp.
-LEVEL_RAMP = ["#9fc3cf", "#5f9db2", "#2f7190", "#1b4d6b", "#0f2f47", "#071a2b"]
+LEVEL_RAMP = ["#a8cfdc", "#6fa9c0", "#3f84a3", "#25607f", "#163f5a", "#0a2236"]
 
 SERIES = ["#2f7190", "#b5532f", "#3c7a5a", "#7b4f9d", "#c08a1e", "#4a5a68", "#a33a3a", "#5f9db2"]
 
@@ -33,8 +33,8 @@ def level_colour(level: int, levels: int) -> str:
     if levels <= 1:
         return LEVEL_RAMP[3]
     top = len(LEVEL_RAMP) - 1
-    # Spread the levels over the ramp (skipping its lightest shade) so neighbours stay distinguishable.
-    return LEVEL_RAMP[min(top, round(1 + int(level) * (top - 1) / (levels - 1)))]
+    # Spread the levels over the whole ramp so neighbouring levels stay distinguishable.
+    return LEVEL_RAMP[min(top, round(int(level) * top / (levels - 1)))]
 
 
 def apply() -> None:

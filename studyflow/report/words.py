@@ -42,7 +42,8 @@ def sentence(row: pd.Series, unit: str | None, formal_order: float | None) -> st
     text = "; ".join(parts) + "."
     reason = row.get("reason")
     if isinstance(reason, str) and reason.strip() and reason.strip().lower() != "nan":
-        text += f" {reason.strip().rstrip('.')}."
+        reason = reason.strip().rstrip(".")
+        text += f" {reason[0].upper()}{reason[1:]}."
     return text[0].upper() + text[1:]
 
 

@@ -63,8 +63,13 @@ def test_mesh_family_coarse_to_fine(tmp_path):
         meshes.append((f"level {level}", meshio.read(tmp_path / f"m{level}.vtu")))
     fig = mesh_family(meshes)
     titles = [ax.get_title(loc="left") for ax in fig.axes]
-    assert titles == ["level 0: 50 cells", "level 1: 200 cells", "level 2: 800 cells"]
-    for ax, (_, mesh) in zip(fig.axes, meshes):
+    assert titles == ["level 0: 50 cells", "level 1: 200 cells", "level 2: 800 cells",
+                      "level 0: detail", "level 1: detail", "level 2: detail"]
+    windows = {(ax.get_xlim(), ax.get_ylim()) for ax in fig.axes[3:]}
+    assert len(windows) == 1  # the same window of every level
+    (xlim, ylim), = windows
+    assert xlim[1] - xlim[0] == pytest.approx(0.2) and ylim[1] - ylim[0] == pytest.approx(0.2)  # 20 % of 1.0
+    for ax, (_, mesh) in zip(fig.axes[:3], meshes):
         (polys,) = [c for c in ax.collections if isinstance(c, PolyCollection)]
         assert len(polys.get_paths()) == len(mesh.cells[0].data)
         lo, hi = ax.dataLim.min, ax.dataLim.max

@@ -16,6 +16,8 @@ def new_figure(panels: int, ncols: int = 3, panel_size: tuple[float, float] = (3
     style.apply()
     panels = max(1, panels)
     ncols = max(1, min(ncols, panels))
+    if panels == 1:
+        panel_size = (max(panel_size[0], 5.0), max(panel_size[1], 3.4))  # room for the legend below
     nrows = math.ceil(panels / ncols)
     # Figure() rather than pyplot.figure(): no global registry, nothing to leak across many figures.
     fig = Figure(figsize=(panel_size[0] * ncols, panel_size[1] * nrows + 0.3), layout="constrained")
@@ -59,7 +61,7 @@ def levels_count(results: pd.DataFrame | None) -> int:
     return int(pd.to_numeric(results["level"], errors="coerce").max()) + 1
 
 
-def figure_legend(fig: Figure, axes: list, ncols: int = 4) -> None:
+def figure_legend(fig: Figure, axes: list, ncols: int = 6) -> None:
     """One legend for the whole figure, below the panels, with each label once.
 
     Cheaper than a legend per panel placed by 'best' (which tests every position against every
@@ -71,5 +73,7 @@ def figure_legend(fig: Figure, axes: list, ncols: int = 4) -> None:
             if text and not text.startswith("_") and text not in seen:
                 seen[text] = handle
     if seen:
+        width = fig.get_figwidth()
+        fits = max(2, int(width / 1.6))  # about 1.6 inch per legend entry at this font size
         fig.legend(list(seen.values()), list(seen.keys()), loc="outside lower center",
-                   ncols=min(ncols, len(seen)), fontsize=7.5)
+                   ncols=min(ncols, len(seen), fits), fontsize=7.5)

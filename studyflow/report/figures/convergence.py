@@ -55,9 +55,8 @@ def value_vs_size(results: pd.DataFrame, uncertainty: pd.DataFrame | None, quant
                 if xname == "h":
                     ax.plot([0.0], [ext], marker="*", ms=10, color=style.ACCENT, zorder=4,
                             label="extrapolated (h = 0)")
-            ax.text(0.98, 0.04, f"p = {fmt(u.get('order'), 3)}   ext = {fmt(ext)}   U = {fmt(big_u, 3)}",
-                    transform=ax.transAxes, ha="right", va="bottom", fontsize=7, color=style.INK,
-                    bbox={"boxstyle": "square,pad=0.25", "fc": "white", "ec": style.RULE, "lw": 0.5})
+            ax.set_title(f"p = {fmt(u.get('order'), 3)}   ext = {fmt(ext)}   U = {fmt(big_u, 3)}", loc="right",
+                         fontsize=7, fontweight="normal", color=style.INK)
             if xname == "h":
                 ax.set_xlim(left=0.0)
             if xname == "cells":

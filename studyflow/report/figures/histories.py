@@ -82,8 +82,12 @@ def residual_pages(histories: pd.DataFrame, cases: list[str], residuals: list[st
         hi = hi if hi > lo else lo + 1
         columns = min(COLUMNS, len(chunk))
         rows_n = math.ceil(len(chunk) / columns)
-        fig = Figure(figsize=(1.55 * columns + 0.9, 1.3 * rows_n + 0.9))
-        ax = fig.add_axes((0.06, 0.1, 0.93, 0.86))
+        # Margins in inches, so one row of panels gets the same room for its labels as ten rows.
+        left, bottom, top, right = 0.6, 0.85, 0.15, 0.1
+        width_in, height_in = 1.55 * columns + left + right, 1.3 * rows_n + bottom + top
+        fig = Figure(figsize=(width_in, height_in))
+        ax = fig.add_axes((left / width_in, bottom / height_in, 1 - (left + right) / width_in,
+                           1 - (bottom + top) / height_in))
         ax.set_axis_off()
         segs: dict[str, list[np.ndarray]] = {q: [] for q in names}
         frames, tol_segs, grid_segs = [], [], []
@@ -127,15 +131,16 @@ def residual_pages(histories: pd.DataFrame, cases: list[str], residuals: list[st
         # Written as figure text; kept on the axes as labels too, so readers of the object find them.
         ax.set_xlabel("iteration")
         ax.set_ylabel("residual (log scale)")
-        fig.text(0.5, 0.055, f"iteration (each panel: 0 to {fmt(it_max, 4)})", ha="center", fontsize=8)
-        fig.text(0.012, 0.53, f"residual, log scale (each panel: 1e{lo} to 1e{hi})", rotation=90,
-                 va="center", fontsize=8)
+        fig.text(0.5, 0.42 / height_in, f"iteration (each panel: 0 to {fmt(it_max, 4)})", ha="center",
+                 va="bottom", fontsize=8)
+        fig.text(0.1 / width_in, (bottom + 0.5 * (height_in - bottom - top)) / height_in,
+                 "residual, log scale", rotation=90, va="center", fontsize=8)
         handles = [Line2D([], [], color=colours[q], label=q) for q in names]
         if tol_segs:
             handles.append(Line2D([], [], color=style.ACCENT, ls="--", label=f"tolerance {fmt(tolerance, 3)}"))
         if handles:
             fig.legend(handles=handles, loc="lower center", ncols=min(6, len(handles)), fontsize=7,
-                       bbox_to_anchor=(0.5, 0.0))
+                       bbox_to_anchor=(0.5, 0.02 / height_in))
         fig.studyflow_panels = list(chunk)  # for readers of the object (tests): which case is which panel
         fig.studyflow_scale = {"decades": (lo, hi), "iterations": (0.0, it_max)}
         pages.append(fig)
