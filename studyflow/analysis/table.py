@@ -90,8 +90,13 @@ def prepare(results: pd.DataFrame, *, dim: int | None = None, measure: float = 1
     used = [c for c in ("point", "quantity", "kind", "coord", "value", "h", "cells", "level", "case", "converged",
                         "row") if c in results.columns]
     df = results[used]
+    keep = np.ones(len(results), dtype=bool)
     if "status" in results.columns:
-        df = df[(results["status"].astype(str) == "done").to_numpy()]
+        keep &= (results["status"].astype(str) == "done").to_numpy()
+    if "kind" in results.columns:
+        # A history's final value is an iterative monitor, not a mesh-dependent result to assess.
+        keep &= (results["kind"].astype(str) != "history").to_numpy()
+    df = df[keep]
     df = df.copy()
     df["point"] = df["point"].astype(str)
     df["quantity"] = df["quantity"].astype(str)
@@ -203,8 +208,12 @@ def assess(
     study: Any = None,
     source: str = "results",
     strict: bool = False,
+    quantities: Sequence[str] | None = None,
 ) -> pd.DataFrame:
     """Assess every (point, quantity[, station]) of a tidy results table; one row each.
+
+    ``quantities`` limits the assessment to those names (default: the study's
+    ``analysis.quantities`` when given, else every scalar and profile quantity).
 
     Method by number of usable levels n: n = 2 two-level GCI with the formal order and Fs = 3;
     n = 3 the three-level procedure of Celik et al. (2008) with Fs = 1.25; n >= 4 the
@@ -229,6 +238,10 @@ def assess(
     s = settings or Settings()
     if study is not None:
         s, residuals, monitors, dim, measure = _from_study(study, s, residuals, monitors, dim, measure)
+        if quantities is None:
+            quantities = _chosen_quantities(study, results)
+    if quantities is not None:
+        results = results[results["quantity"].astype(str).isin(list(quantities)).to_numpy()]
     if formal_order is not None:
         s = replace(s, formal_order=float(formal_order))
     good, groups, _ = prepare(results, dim=dim, measure=measure, source=source, strict=strict)
@@ -350,6 +363,23 @@ def _from_study(study: Any, s: Settings, residuals: Sequence[str], monitors: Map
     if measure == 1.0 and mesh is not None and mesh.measure is not None:
         measure = float(mesh.measure)
     return replace(s, **changes), residuals, monitors, dim, measure
+
+
+def _chosen_quantities(study: Any, results: pd.DataFrame) -> list[str] | None:
+    """The study's ``analysis.quantities`` list, checked against the quantities it declares."""
+    analysis = getattr(study, "analysis", None)
+    chosen = (getattr(analysis, "model_extra", None) or {}).get("quantities")
+    if chosen is None:
+        return None
+    file = str(getattr(study, "file", "study.yaml"))
+    if not isinstance(chosen, (list, tuple)) or not all(isinstance(q, str) for q in chosen):
+        raise InputError(Problem(file, "analysis.quantities", chosen, "must be a list of quantity names"))
+    declared = set(getattr(study, "quantities", {}) or {})
+    unknown = [Problem(file, f"analysis.quantities[{i}]", q, "is not a quantity of this study")
+               for i, q in enumerate(chosen) if declared and q not in declared]
+    if unknown:
+        raise InputError(unknown)
+    return list(chosen)
 
 
 def _fine_not_converged(good: pd.DataFrame, groups: pd.DataFrame) -> np.ndarray:

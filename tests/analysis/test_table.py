@@ -238,3 +238,33 @@ def test_profile_band_is_value_plus_minus_U_per_station():
     assert band["upper"].to_numpy() == pytest.approx((cf["value_fine"] + cf["U"]).to_numpy())
     # Analytic data x (1 + 0.5 h^2): the exact profile x lies inside the band at every station.
     assert np.all((band["lower"] <= band["coord"]) & (band["coord"] <= band["upper"]))
+
+
+def test_history_final_values_are_not_assessed():
+    # A history's final value (kind "history", DEVELOPERS.md) is an iterative monitor, not a result.
+    t = _table()
+    extra = [_row("p1", lev, H[lev], "mass_residual", 1e-9 * (lev + 1), kind="history") for lev in (0, 1, 2)]
+    unc = assess(pd.concat([t, pd.DataFrame(extra)], ignore_index=True), None, 2.0)
+    assert "mass_residual" not in set(unc["quantity"])
+    assert "drag" in set(unc["quantity"])
+
+
+def test_quantities_selection_from_the_study_and_its_errors():
+    class _Analysis:
+        formal_order = 2.0
+        safety_factor = None
+        model_extra = {"quantities": ["drag"]}
+
+    class _Study:
+        file = "study.yaml"
+        analysis = _Analysis()
+        quantities = {"drag": None, "cf": None}
+        iteration = None
+        mesh = None
+
+    unc = assess(_table(), None, study=_Study())
+    assert set(unc["quantity"]) == {"drag"}
+    assert set(assess(_table(), None, 2.0, quantities=["cf"])["quantity"]) == {"cf"}
+    _Analysis.model_extra = {"quantities": ["drag", "lift"]}
+    with pytest.raises(InputError, match=r"study.yaml: analysis.quantities\[1\]: is not a quantity of this study"):
+        assess(_table(), None, study=_Study())
