@@ -142,7 +142,7 @@ class Renderer:
         for tok in self._step_tokens[i]:
             try:
                 out.append(self.tokens.render(tok, ctx))
-            except jinja2.TemplateError as exc:
+            except Exception as exc:  # noqa: BLE001 - whatever the argument's expression raises is its error
                 raise TemplateError(f"{self.study.file}: steps[{i}].run: argument {tok!r}: "
                                     f"{explain(exc)} (case {case_id})") from None
         return out

@@ -32,6 +32,8 @@ def make_environment(loader: jinja2.BaseLoader | None = None) -> ImmutableSandbo
 def explain(exc: BaseException) -> str:
     """Short wording of a Jinja failure: ``unknown variable 'Rey'`` rather than Jinja's own text."""
     msg = str(exc)
+    if not isinstance(exc, jinja2.TemplateError):  # raised by the expression itself: 1 / 0, "%d" % "x"
+        return f"{type(exc).__name__}: {msg}"
     m = re.match(r"^'([^']+)' is undefined$", msg)
     if m:
         return f"unknown variable {m.group(1)!r}"
@@ -122,7 +124,7 @@ def render_file(tf: TemplateFile, context: dict[str, Any], case_id: str) -> byte
         return tf.raw
     try:
         return tf.template.render(context).encode("utf-8")
-    except jinja2.TemplateError as exc:
+    except Exception as exc:  # noqa: BLE001 - whatever a template's expression raises is the template's error
         line = error_line(exc, tf.template.filename or "")
         where = f"{tf.path}:{line}" if line else str(tf.path)
         raise TemplateError(f"{where}: {explain(exc)} (case {case_id})") from None
