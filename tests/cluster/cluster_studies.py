@@ -50,3 +50,40 @@ def make_study(root: Path, values: list[int], cluster: dict | None,
         doc["cluster"] = cluster
     (study / "study.yaml").write_text(yaml.safe_dump(doc, sort_keys=False))
     return study
+
+
+CAVITY_TOML = """\
+# invented demo: lid-driven cavity on a coarse mesh
+[case]
+kind = "cavity"
+reynolds = {{ Re }}
+
+[mesh]
+nx = {{ mesh.nx }}
+ny = {{ mesh.ny }}
+"""
+
+
+def make_cavity_study(root: Path, cluster: dict, reynolds: list[float], failing_re: float) -> Path:
+    """Cavity cases of the bundled solver (studyflow-fv) on an 8 x 8 mesh, one per Reynolds
+    number, plus the point ``too-fast`` whose Reynolds number the solver refuses (exit code 3,
+    a bad case file) on purpose."""
+    (root / "template").mkdir(parents=True, exist_ok=True)
+    (root / "template" / "case.toml").write_text(CAVITY_TOML)
+    study = root / "study"
+    study.mkdir(exist_ok=True)
+    doc = {
+        "title": "Coarse cavity sweep on a cluster (invented)",
+        "template": "../template",
+        "constants": {"solver": "studyflow-fv"},
+        "parameters": [{"kind": "product", "values": {"Re": reynolds}},
+                       {"kind": "table", "points": [{"id": "too-fast", "Re": failing_re}]}],
+        "mesh": {"levels": 1, "counts": {"nx": 8, "ny": 8}},
+        "steps": [{"name": "solve", "run": "{{ solver }} case.toml --quiet", "reads": ["case.toml"],
+                   "writes": ["metrics.json", "history.csv", "fields.vtu"]}],
+        "quantities": {"u_min": {"from": "json", "file": "metrics.json", "key": "u_min"}},
+        "resources": {"cores": 1, "memory_mb": 300, "time_min": 3},
+        "cluster": cluster,
+    }
+    (study / "study.yaml").write_text(yaml.safe_dump(doc, sort_keys=False))
+    return study

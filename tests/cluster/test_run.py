@@ -1,13 +1,15 @@
 """Studies run on a real single-node SLURM cluster through snakemake-executor-plugin-slurm.
 
-What is checked comes from outside studyflow: the scheduler's own record of each submitted job
-(``scontrol show job``: CPUs, memory, time limit, partition), the job count sbatch accepted, the
-analytic answer ``y = 2 x`` of the demo solver, and the scheduler's state of a job that was
-cancelled. Every run is bounded by a hard time-out.
+What is checked comes from outside studyflow's orchestration: the scheduler's own record of each
+submitted job (``scontrol show job``: CPUs, memory, time limit, partition, state), the number of
+jobs sbatch accepted, the bundled solver's documented exit code for a bad case file and its
+result for the same case run by hand, and the scheduler's state of a job that was cancelled.
+Every run is bounded by a hard time-out.
 """
 
 from __future__ import annotations
 
+import json
 import re
 import signal
 import subprocess
@@ -17,13 +19,13 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from cluster_studies import make_study
+from cluster_studies import make_cavity_study, make_study
 from studyflow import api
 from studyflow.cluster.outcome import submitted_jobs
 
 pytestmark = pytest.mark.slurm
 
-RUN_TIMEOUT_S = 150
+RUN_TIMEOUT_S = 300  # generous: the polling back-off alone adds up to a minute on a busy machine
 
 
 class _Timeout(Exception):
@@ -62,8 +64,9 @@ def cluster_runs(slurm_cluster, tmp_path_factory):
     """Both demo studies run at once (the node has room for both), so the scheduler's polling
     delays are paid once: a batched study of six cases, one failing on purpose, and a study whose
     second case cancels its own scheduler job."""
-    batched = make_study(tmp_path_factory.mktemp("batched"), [1, 2, 3, -4, 5, 6],
-                         {"batch": 3, "partition": "local", "first_check_s": 2})
+    batched = make_cavity_study(tmp_path_factory.mktemp("batched"),
+                                {"batch": 3, "partition": "local", "first_check_s": 2},
+                                reynolds=[10.0, 20.0, 40.0, 80.0, 160.0], failing_re=1.0e9)
     cancelled = make_study(tmp_path_factory.mktemp("cancelled"), [1, 99],
                            {"partition": "local", "first_check_s": 2})
     side: dict = {}
@@ -83,14 +86,16 @@ def cluster_runs(slurm_cluster, tmp_path_factory):
     return {"batched": (batched, main), "cancelled": (cancelled, side)}
 
 
-def test_batched_study_runs_through_sbatch_and_reports_the_failed_case(cluster_runs):
+def test_batched_study_runs_through_sbatch_and_reports_the_failed_case(cluster_runs, tmp_path):
     study, outcome = cluster_runs["batched"]
 
     by_case = {c.case: c for c in outcome.cases}
     assert len(by_case) == 6
     failed = [c for c in outcome.cases if c.status == "failed"]
-    assert [c.case for c in failed] == ["x-4--m0"]
+    assert [c.case for c in failed] == ["too-fast--m0"]
+    # studyflow-fv exits 3 for a bad case file (its documented exit codes, studyflow/fvsolver/cli.py).
     assert failed[0].reason == "solve: exit code 3"
+    assert "reynolds" in (study / "cases" / "too-fast--m0" / "logs" / "solve.log").read_text()
     assert sum(c.status == "done" for c in outcome.cases) == 5  # the rest of its batch still ran
 
     # Six cases in batches of three: two scheduler jobs, not six.
@@ -112,20 +117,28 @@ def test_batched_study_runs_through_sbatch_and_reports_the_failed_case(cluster_r
     # Status and the results table tell the same story, case by case.
     st = api.status(study)
     assert {c.case: c.status for c in st.cases} == {c: by_case[c].status for c in by_case}
-    cases = pd.read_csv(study / "results" / "cases.csv")
-    row = cases.set_index("case").loc["x-4--m0"]
-    assert row["status"] == "failed" and "exit code 3" in row["reason"]
+    cases = pd.read_csv(study / "results" / "cases.csv").set_index("case")
+    assert cases.loc["too-fast--m0", "status"] == "failed"
+    assert "exit code 3" in cases.loc["too-fast--m0", "reason"]
     results = pd.read_csv(study / "results" / "results.csv")
-    ys = results[(results.quantity == "y") & (results.status == "done")].set_index("x")["value"]
-    for x in (1, 2, 3, 5, 6):
-        assert ys.loc[x] == 2 * x  # the demo solver's exact answer
+    done = results[(results.quantity == "u_min") & (results.status == "done")].set_index("case")["value"]
+    assert len(done) == 5
+
+    # A case solved on the cluster gives the numbers the solver gives when run by hand here.
+    case = next(c for c in done.index if c.startswith("Re40"))
+    local = tmp_path / "by-hand"
+    local.mkdir()
+    (local / "case.toml").write_bytes((study / "cases" / case / "case.toml").read_bytes())
+    subprocess.run(["timeout", "-k", "5", "120", "studyflow-fv", "case.toml", "--quiet"], cwd=local, check=True,
+                   capture_output=True)
+    assert done.loc[case] == json.loads((local / "metrics.json").read_text())["u_min"]
 
     # The plan of a cluster run reads like a local one: only the failed case must run again.
     plan = api.plan(study)
-    assert plan.cases_to_run() == ["x-4--m0"]
-    assert plan.case_reason("x-4--m0") == "solve: failed before (exit code 3)"
+    assert plan.cases_to_run() == ["too-fast--m0"]
+    assert plan.case_reason("too-fast--m0") == "solve: failed before (exit code 3)"
     # No failure marker is left behind once the run is over.
-    assert not (study / "cases" / "x-4--m0" / ".studyflow" / "solve.done").exists()
+    assert not (study / "cases" / "too-fast--m0" / ".studyflow" / "solve.done").exists()
 
 
 def test_cancelled_cluster_job_shows_the_scheduler_reason(cluster_runs):
