@@ -8,6 +8,7 @@ group ("point"); the value column's name is the quantity.
 from __future__ import annotations
 
 import os
+import warnings
 from collections.abc import Sequence
 from pathlib import Path
 
@@ -30,7 +31,14 @@ def read_level_csv(path: str | os.PathLike, *, value: str = "value", size: str |
     if not p.is_file():
         raise InputError(Problem(file, "", file, "no such file"))
     try:
-        raw = pd.read_csv(p, dtype=str, keep_default_na=False, skipinitialspace=True)
+        with warnings.catch_warnings():
+            # index_col=False: a first row longer than the header is an error, not silently an index
+            warnings.simplefilter("error", pd.errors.ParserWarning)
+            raw = pd.read_csv(p, dtype=str, keep_default_na=False, skipinitialspace=True, index_col=False)
+    except pd.errors.ParserWarning:
+        lines = p.read_text(encoding="utf-8", errors="replace").splitlines()
+        raise InputError(Problem(file, "line 2", lines[1] if len(lines) > 1 else None,
+                                 "the row has more fields than the header")) from None
     except (pd.errors.EmptyDataError, pd.errors.ParserError, UnicodeDecodeError) as exc:
         raise InputError(Problem(file, "", None, f"not a readable CSV table ({exc})")) from exc
     raw.columns = [str(c).strip() for c in raw.columns]
