@@ -31,11 +31,12 @@ from typing import Callable, Sequence
 from ..errors import WorkflowError
 from ..spec.model import Study
 from . import signature as sig
-from .rules_support import done_path, ensure_importable, group_components
+from .rules_support import done_path, ensure_importable, group_components, rule_spec
 
 RULES = Path(__file__).resolve().parent / "rules" / "studyflow.smk"
 RUN_LOG = "run.log"
 RUN_INFO = "run.json"
+RULES_INFO = "rules.json"
 
 
 @dataclass
@@ -71,7 +72,7 @@ def default_cores() -> int:
 
 def snakemake_argv(study: Study, targets: Sequence[str], opts: EngineOptions) -> list[str]:
     cores = opts.cores or default_cores()
-    config = [f"study={study.file}", "driver=1"]
+    config = [f"study={study.file}", "driver=1", f"rules={study.state_dir / RULES_INFO}"]
     if opts.retries is not None:
         config.append(f"retries={int(opts.retries)}")
     config += list(opts.config)
@@ -181,6 +182,7 @@ def run_engine(study: Study, cases: Sequence[str], opts: EngineOptions,
     state = study.state_dir
     state.mkdir(parents=True, exist_ok=True)
     log_path = state / RUN_LOG
+    sig.write_json_atomic(str(state / RULES_INFO), rule_spec(study))
     argv = snakemake_argv(study, targets, opts)
     started = time.time()
     sig.write_json_atomic(str(state / RUN_INFO), {

@@ -13,12 +13,14 @@ import shlex
 import sys
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Callable
+from typing import TYPE_CHECKING, Any, Callable
 
-from ..design.cases import Design, build_design
-from ..render.cases import STATE, render_study
-from ..spec.loader import load_study
-from ..spec.model import StepSpec, Study
+if TYPE_CHECKING:
+    from ..spec.model import StepSpec, Study
+
+# Kept here rather than imported from render: the engine imports this module at start-up, and
+# the rendering stack (jinja2, the design) is not needed when the driver already rendered.
+STATE = ".studyflow"
 
 RULE_PREFIX = "sf_"
 BATCH_GROUP = "sf_batch"
@@ -63,94 +65,124 @@ def ensure_importable() -> None:
         os.environ["PYTHONPATH"] = parent + (os.pathsep + current if current else "")
 
 
+def rule_spec(study: Study) -> dict[str, Any]:
+    """Everything the rules need, as plain JSON-able data (the driver hands it to the engine in
+    ``.studyflow/rules.json`` so the engine need not load the study file again)."""
+    root = study.template_dir
+    template_rels = {p.relative_to(root).as_posix() for p in root.rglob("*") if p.is_file()}
+    steps = []
+    for i, step in enumerate(study.steps):
+        res: dict[str, int] = {}
+        mem = step.memory_mb or study.resources.memory_mb
+        if mem:
+            res["mem_mb"] = int(mem)
+        limit = study.time_limit_s(step)
+        if limit:
+            res["runtime"] = max(1, int(round(limit / 60.0)))
+        steps.append({"name": step.name, "previous": study.steps[i - 1].name if i else None,
+                      "template_reads": [r for r in step.reads if r in template_rels],
+                      "threads": step.cores or study.resources.cores, "resources": res,
+                      "group": group_for(study, step)})
+    return {"study": str(study.file), "root": str(study.root), "retries": study.retries, "steps": steps}
+
+
+@dataclass(frozen=True)
+class RuleStep:
+    name: str
+    previous: str | None
+    template_reads: tuple[str, ...]
+    threads: int
+    resources: dict[str, int] = field(hash=False)
+    group: str | None = None
+
+
 @dataclass
 class RuleSet:
-    study: Study
+    steps: list[RuleStep]
     prefix: str  # path from Snakemake's working directory to the study folder ("" or "studies/x/")
     retries: int
     all_targets: list[str] = field(default_factory=list)
-    design: Design | None = None
     # The module each job runs; cluster batches use studyflow.cluster.batchstep (config step_runner).
     runner: str = "studyflow.workflow.runstep"
 
-    @property
-    def steps(self) -> list[StepSpec]:
-        return list(self.study.steps)
+    def rule_name(self, step: RuleStep) -> str:
+        return rule_name(step.name)
 
-    def rule_name(self, step: StepSpec) -> str:
-        return rule_name(step)
-
-    def output(self, step: StepSpec) -> str:
+    def output(self, step: RuleStep) -> str:
         return done_path(self.prefix, "{case}", step.name)
 
-    def inputs(self, step: StepSpec) -> Callable[[Any], list[str]]:
-        i = self.study.steps.index(step)
-        template_rels = self._template_rels()
-        prefix = self.prefix
-        previous = self.study.steps[i - 1].name if i else None
-        reads = [r for r in step.reads if r in template_rels]
+    def inputs(self, step: RuleStep) -> Callable[[Any], list[str]]:
+        prefix, name, previous, reads = self.prefix, step.name, step.previous, step.template_reads
 
         def fn(wildcards: Any) -> list[str]:
             base = f"{prefix}cases/{wildcards.case}/"
-            out = [f"{base}{STATE}/{step.name}.step.json"] + [base + r for r in reads]
+            out = [f"{base}{STATE}/{name}.step.json"] + [base + r for r in reads]
             if previous:
                 out.append(f"{base}{STATE}/{previous}.done")
             return out
 
         return fn
 
-    def _template_rels(self) -> set[str]:
-        root = self.study.template_dir
-        return {p.relative_to(root).as_posix() for p in root.rglob("*") if p.is_file()}
+    def threads(self, step: RuleStep) -> int:
+        return step.threads
 
-    def threads(self, step: StepSpec) -> int:
-        return step.cores or self.study.resources.cores
+    def resources(self, step: RuleStep) -> dict[str, int]:
+        return dict(step.resources)
 
-    def resources(self, step: StepSpec) -> dict[str, int]:
-        out: dict[str, int] = {}
-        mem = step.memory_mb or self.study.resources.memory_mb
-        if mem:
-            out["mem_mb"] = int(mem)
-        limit = self.study.time_limit_s(step)
-        if limit:
-            out["runtime"] = max(1, int(round(limit / 60.0)))
-        return out
-
-    def group(self, step: StepSpec) -> str | None:
-        return group_for(self.study, step)
+    def group(self, step: RuleStep) -> str | None:
+        return step.group
 
     @property
     def shell_command(self) -> str:
         """The one shell line of every rule. Snakemake fills ``{wildcards.case}`` and
         ``{params.step}``; case ids are filesystem-safe ([A-Za-z0-9._-]) and step names are
-        identifiers, so with the quoted prefix each stays one argument."""
+        identifiers, so with the quoted prefix each stays one argument. ``-S``: the runner needs
+        only the standard library, and skipping site start-up saves time on every job."""
         case_dir = shlex.quote(f"{self.prefix}cases/").replace("{", "{{").replace("}", "}}") + "{wildcards.case}"
         python = shlex.quote(sys.executable).replace("{", "{{").replace("}", "}}")
         return f"{python} -S -m {self.runner} {case_dir} {{params.step}}"
 
 
 def setup(config: dict[str, Any], workdir: str | None = None) -> RuleSet:
-    """Load the study named by ``config['study']``; render it unless the driver already did.
+    """The rules for the study named by ``config['study']``; renders it unless the driver did.
 
     ``config['driver']`` set: the studyflow run command rendered the cases and passes explicit
-    targets, so neither rendering nor the list of all targets is needed (that keeps the parse
-    fast at 10,000 cases). Otherwise (``snakemake --config study=studies/NAME``) the study is
-    rendered here and rule ``all`` asks for every case's last step.
+    targets, so neither rendering nor the list of all targets is needed, and with
+    ``config['rules']`` (the driver's ``.studyflow/rules.json``) the study file is not even read
+    again: that keeps the engine's start-up short at 10,000 cases. Otherwise
+    (``snakemake --config study=studies/NAME``) the study is rendered here and rule ``all`` asks
+    for every case's last step.
     """
+    import json
+
     if "study" not in config:
         raise SystemExit("studyflow: give the study with --config study=studies/NAME")
     ensure_importable()
-    study = load_study(config["study"])
+    study = None
+    if config.get("driver") and config.get("rules"):
+        with open(config["rules"], encoding="utf-8") as fh:
+            spec = json.load(fh)
+    else:
+        from ..spec.loader import load_study
+
+        study = load_study(config["study"])
+        spec = rule_spec(study)
     cwd = Path(workdir or os.getcwd()).resolve()
-    rel = os.path.relpath(study.root, cwd)
+    rel = os.path.relpath(spec["root"], cwd)
     prefix = "" if rel == "." else rel.rstrip("/") + "/"
-    retries = int(config.get("retries", study.retries))
-    rs = RuleSet(study, prefix, retries)
+    retries = int(config.get("retries", spec["retries"]))
+    steps = [RuleStep(s["name"], s["previous"], tuple(s["template_reads"]), int(s["threads"]),
+                      dict(s["resources"]), s.get("group")) for s in spec["steps"]]
+    rs = RuleSet(steps, prefix, retries)
     runner = str(config.get("step_runner") or rs.runner)
     if not runner.startswith("studyflow.") or not runner.replace(".", "").replace("_", "").isalnum():
         raise SystemExit(f"studyflow: config step_runner must be a studyflow module (got {runner!r})")
     rs.runner = runner
     if not config.get("driver"):
+        from ..design.cases import build_design
+        from ..render.cases import render_study
+
+        assert study is not None
         design = build_design(study)
         result = render_study(study, design)
         if result.removed:
@@ -158,5 +190,4 @@ def setup(config: dict[str, Any], workdir: str | None = None) -> RuleSet:
                              f"kept: {', '.join(result.removed[:5])}{' ...' if len(result.removed) > 5 else ''}\n")
         last = study.steps[-1].name
         rs.all_targets = [done_path(prefix, c.id, last) for c in design.cases]
-        rs.design = design
     return rs
