@@ -29,12 +29,19 @@ def test_report_opens_in_headless_chromium(built, tmp_path):
         shot = tmp_path / "report.png"
         browser.screenshot(shot)
         console = browser.console()
+        # the same checks see a broken page: a missing picture and a console error
+        bad = tmp_path / "bad.html"
+        bad.write_text('<html><body><img src="missing.png"><script>console.error("boom")</script></body></html>')
+        browser.open(bad.as_uri())
+        broken = browser.script("return Array.from(document.images).map(i => i.naturalWidth);")
+        bad_console = browser.console()
     finally:
         browser.close()
     assert len(images) == len(result.figures) >= 9
     assert all(i["complete"] and i["w"] > 0 and i["h"] > 0 for i in images), images
     errors = [m for m in console if m.get("level") == "SEVERE"]
     assert errors == []
+    assert broken == [0] and any("boom" in m.get("message", "") for m in bad_console)
     assert shot.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and shot.stat().st_size > 20_000
     shutil.copy(shot, result.index.parent / "browser-check.png")  # kept beside the report for a person to look at
     unc = pd.read_csv(root / "results" / "uncertainty.csv")

@@ -128,3 +128,11 @@ def test_profile_with_blasius_reference(data):
     assert not [line for line in a1.lines if line.get_label() == "Blasius"]  # named for the first point only
     levels = [line for line in a0.lines if line.get_label().startswith("level")]
     assert len(levels) == 3 and min(levels[0].get_xdata()) == pytest.approx(0.1)
+
+
+def test_sweep_with_a_reference_curve(data):
+    """A reference table over a swept parameter is drawn as given (here cd-like values invented for the test)."""
+    ref = pd.DataFrame({"x": [1.0e4, 5.0e4, 1.0e5], "y": [12.5, 5.5, 3.9]})
+    fig = quantity_vs_parameter(data.results, _unc(data, "dp"), "dp", "Pa", "Re", ["angle"], ref, "tunnel data")
+    line = [ln for ln in fig.axes[0].lines if ln.get_label() == "tunnel data"][0]
+    assert list(line.get_xdata()) == [1.0e4, 5.0e4, 1.0e5] and list(line.get_ydata()) == [12.5, 5.5, 3.9]
