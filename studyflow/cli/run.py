@@ -109,6 +109,8 @@ def run_run(args: argparse.Namespace) -> int:
         print(f"{len(outcome.render.removed)} case folder(s) no longer in the study were kept: "
               + ", ".join(outcome.render.removed[:10]))
     if outcome.tables is not None:
+        for case, reason in outcome.refused_outputs[:20]:
+            print(f"  failed  {case}  {reason}  (output refused at collection)")
         print("results collected in results/ (results, histories, cases)")
         print(CAUTION)
     return outcome.exit_code

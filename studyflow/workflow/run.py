@@ -37,10 +37,23 @@ class RunOutcome:
         return bool(self.engine and self.engine.interrupted)
 
     @property
+    def refused_outputs(self) -> list[tuple[str, str]]:
+        """(case, reason) of cases whose steps all ended well but whose outputs the collection
+        refused (non-finite value, unreadable file); empty when nothing was collected."""
+        cases = getattr(self.tables, "cases", None)
+        if cases is None or "status" not in getattr(cases, "columns", ()):
+            return []
+        failed_steps = {c.case for c in self.failed}
+        rows = cases[(cases["status"] == "failed") & ~cases["case"].isin(failed_steps)]
+        return list(zip(rows["case"], rows["reason"]))
+
+    @property
     def exit_code(self) -> int:
         if self.interrupted:
             return EXIT_INTERRUPTED
         if self.failed or any(c.status != DONE for c in self.cases) and not self.dry:
+            return EXIT_CASES_FAILED
+        if self.refused_outputs:  # a NaN result is a failed case too (issue 2), not a success
             return EXIT_CASES_FAILED
         return EXIT_OK
 
