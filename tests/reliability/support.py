@@ -1,0 +1,147 @@
+"""Small studies with trivial shell solvers for the reliability tests.
+
+Every solver appends one line ``<case> <outcome>`` to ``<study>/executions.log`` (append-only, one
+line per execution, written by the solver itself), so the tests count executions independently of
+studyflow's own records.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+import time
+from collections import Counter
+from pathlib import Path
+from typing import Callable
+
+REPO = Path(__file__).resolve().parents[2]
+
+
+def write_study(root: Path, study: str, files: dict[str, str]) -> Path:
+    (root / "tpl").mkdir(parents=True, exist_ok=True)
+    for rel, text in files.items():
+        p = root / "tpl" / rel
+        p.parent.mkdir(parents=True, exist_ok=True)
+        p.write_text(text)
+    (root / "study.yaml").write_text(study)
+    return root
+
+
+# The solver takes its behaviour from its first argument; once the file <study>/healed exists it
+# behaves (the engineer fixed the fault) and every later execution succeeds.
+FAULT_SOLVER = r"""#!/bin/sh
+mode="$1"
+if [ -e ../../healed ]; then mode=ok; fi
+echo "{{ case }} $mode" >> ../../executions.log
+case "$mode" in
+  ok)        printf '{"q": %s}\n' "{{ a * 10 + 16 / mesh.nx ** 2 }}" > out.json ;;
+  slow)      sleep 1.5; printf '{"q": %s}\n' "{{ a * 10 + 16 / mesh.nx ** 2 }}" > out.json ;;
+  crash)     printf '{"q": ' > out.json; kill -SEGV $$ ;;
+  hang)      sleep 60; printf '{"q": 1}\n' > out.json ;;
+  exitvalid) printf '{"q": 99}\n' > out.json; exit 3 ;;
+  nan)       printf '{"q": NaN}\n' > out.json ;;
+  inf)       printf '{"q": Infinity}\n' > out.json ;;
+  truncated) printf '{"q": 1' > out.json ;;
+  missing)   : ;;
+esac
+"""
+
+
+def fault_study(root: Path, modes: dict[str, str], time_min: float = 0.02, levels: int = 1, extra: str = "") -> Path:
+    """A case per entry of ``modes`` (point id -> solver behaviour) and mesh level. A good case
+    writes q = 10 a + 16 / nx^2 (nx = 4 on level 0): second order in h, limit 10 a."""
+    pts = ", ".join(f"{{id: {pid}, a: {i + 1}, mode: {mode}}}" for i, (pid, mode) in enumerate(modes.items()))
+    study = f"""\
+title: reliability faults
+template: tpl
+parameters:
+  - kind: table
+    points: [{pts}]
+mesh: {{levels: {levels}, ratio: 2, counts: {{nx: 4}}}}
+steps:
+  - name: solve
+    run: [sh, solve.sh, "{{{{ mode }}}}"]
+    reads: [solve.sh]
+    writes: [out.json]
+    time_min: {time_min}
+quantities:
+  q: {{from: json, file: out.json, key: q}}
+{extra}"""
+    return write_study(root, study, {"solve.sh": FAULT_SOLVER})
+
+
+def executions(root: Path) -> Counter:
+    """How many times each case's solver ran (from the solver's own append-only file)."""
+    path = root / "executions.log"
+    lines = path.read_text().splitlines() if path.exists() else []
+    return Counter(line.split()[0] for line in lines if line.strip())
+
+
+def status(root: Path, case: str, step: str = "solve") -> dict:
+    return json.loads((root / "cases" / case / ".studyflow" / f"{step}.status.json").read_text())
+
+
+def cli(*args: str, **kw) -> subprocess.Popen:
+    """``studyflow ARGS`` in a child process leading its own session (so tests can signal it)."""
+    env = {**os.environ, "PYTHONPATH": str(REPO)}
+    return subprocess.Popen([sys.executable, "-m", "studyflow.cli", *args], env=env, start_new_session=True,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, **kw)
+
+
+def wait_for(cond: Callable[[], bool], timeout: float = 90.0) -> None:
+    deadline = time.time() + timeout
+    while not cond():
+        assert time.time() < deadline, "timed out waiting"
+        time.sleep(0.02)
+
+
+def gone(pgid: int) -> bool:
+    try:
+        os.killpg(pgid, 0)
+    except ProcessLookupError:
+        return True
+    return False
+
+
+def snapshot(root: Path) -> dict[str, tuple[int, int, bytes | None]]:
+    """Every entry under ``root``: (mode, mtime_ns, bytes of regular files), to prove nothing changed."""
+    out = {}
+    for dirpath, dirnames, filenames in os.walk(root):
+        for name in dirnames + filenames:
+            p = Path(dirpath) / name
+            st = p.lstat()
+            data = p.read_bytes() if p.is_file() and not p.is_symlink() else None
+            out[str(p.relative_to(root))] = (st.st_mode, st.st_mtime_ns, data)
+    return out
+
+
+def run_direct(root: Path) -> None:
+    """Render the study and run every case's steps with the step runner, without the workflow
+    engine (quick, for tests that need finished cases but are not about the engine)."""
+    from studyflow import api
+    from studyflow.workflow import runstep
+
+    study = api.load_study(root)
+    api.render(study)
+    for case in api.design(study).cases:
+        for step in study.step_names():
+            if runstep.run(str(study.cases_dir / case.id), step) != 0:
+                break
+
+
+def processes_under(root: Path) -> list[int]:
+    """Live processes whose working folder lies under ``root`` (a solver left running)."""
+    root = root.resolve()
+    found = []
+    for entry in os.listdir("/proc"):
+        if not entry.isdigit() or int(entry) == os.getpid():
+            continue
+        try:
+            cwd = Path(os.readlink(f"/proc/{entry}/cwd"))
+        except OSError:
+            continue
+        if cwd == root or root in cwd.parents:
+            found.append(int(entry))
+    return found
