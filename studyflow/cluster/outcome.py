@@ -205,10 +205,11 @@ def record_job_failures(study: Study, cases: Sequence[str], log_text: str, start
     steps = study.step_names()
     written: dict[str, str] = {}
     reasons: dict[str, str] = {}
+    order = {name: i for i, name in enumerate(steps)}
     for job in parse_failures(log_text):
-        for case, step in sorted(set(job.outputs), key=lambda cs: (cs[0], steps.index(cs[1])
-                                                                    if cs[1] in steps else 0)):
-            if case not in wanted or step not in steps or case in written:
+        # A case's steps in study order: the first one not finished gets the reason.
+        for case, step in sorted(set(job.outputs), key=lambda cs: (cs[0], order.get(cs[1], 0))):
+            if case not in wanted or step not in order or case in written:
                 continue
             d = str(study.cases_dir / case)
             path = sig.status_path(d, step)
@@ -217,8 +218,8 @@ def record_job_failures(study: Study, cases: Sequence[str], log_text: str, start
                 if status.get("state") == "failed":
                     written[case] = status.get("reason") or ""
                 continue
-            key = job.job_id or id(job)
-            if key not in reasons:
+            key = job.job_id or str(id(job))
+            if key not in reasons:  # one scheduler query per job, however many cases it held
                 reasons[key] = job_reason(job, study.root)
             now = datetime.now(timezone.utc).isoformat(timespec="seconds")
             doc = dict(status or {})
