@@ -27,14 +27,11 @@ Reasons: ``exit code N``, ``killed by signal NAME``, ``timed out after S s``, ``
 
 from __future__ import annotations
 
-import json
 import os
 import signal
-import socket
 import subprocess
 import sys
 import time
-from datetime import datetime, timezone
 
 try:  # run as a module of the package
     from . import signature as sig
@@ -47,7 +44,8 @@ GRACE_S = 5.0
 
 
 def _now() -> str:
-    return datetime.now(timezone.utc).isoformat(timespec="seconds")
+    # time.strftime rather than datetime: one import less on every job's start-up.
+    return time.strftime("%Y-%m-%dT%H:%M:%S+00:00", time.gmtime())
 
 
 def _descendants(pid: int) -> list[int]:
@@ -97,7 +95,7 @@ def run(case_dir: str, step: str) -> int:
     started_at = time.time()
     status = {"case": os.path.basename(case_dir), "step": step, "state": "running", "reason": None,
               "exit_code": None, "wall_s": None, "started": _now(), "ended": None,
-              "started_at": started_at, "host": socket.gethostname(), "pid": os.getpid()}
+              "started_at": started_at, "host": os.uname().nodename, "pid": os.getpid()}
 
     def finish(state: str, reason: str | None, code: int | None, rc: int) -> int:
         status.update(state=state, reason=reason, exit_code=code, wall_s=round(time.time() - started_at, 3),
