@@ -20,10 +20,8 @@ after the run. Standard library only (it runs once per case and step).
 from __future__ import annotations
 
 import os
-import socket
 import sys
 import time
-from datetime import datetime, timezone
 
 from ..workflow import runstep
 from ..workflow import signature as sig
@@ -36,7 +34,8 @@ def is_failure_marker(doc: dict | None) -> bool:
 
 
 def _now() -> str:
-    return datetime.now(timezone.utc).isoformat(timespec="seconds")
+    # time.strftime rather than datetime, as in runstep: one import less on every job's start-up.
+    return time.strftime("%Y-%m-%dT%H:%M:%S+00:00", time.gmtime())
 
 
 def _write_failure(case_dir: str, step: str, reason: str | None) -> None:
@@ -63,7 +62,7 @@ def run(case_dir: str, step: str) -> int:
         sig.write_json_atomic(sig.status_path(case_dir, step), {
             "case": os.path.basename(case_dir), "step": step, "state": "failed", "reason": reason,
             "exit_code": None, "wall_s": 0.0, "started": _now(), "ended": _now(), "started_at": now,
-            "host": socket.gethostname(), "pid": os.getpid()})
+            "host": os.uname().nodename, "pid": os.getpid()})
         _write_failure(case_dir, step, reason)
         return 0
     rc = runstep.run(case_dir, step)
