@@ -69,6 +69,11 @@ def case_table(data: StudyData) -> pd.DataFrame:
     table = pd.DataFrame(list(rows.values()), columns=["case", "point", "level", "status", "wall time [s]", "reason"])
     summary = residual_summary(data.histories, list(data.settings.residuals))
     table = table.merge(summary, on="case", how="left")
+    if data.cases_table is not None and "iterations" in data.cases_table and "case" in data.cases_table:
+        # cases without a recorded history still have the iteration count the collector found
+        counted = pd.to_numeric(data.cases_table.set_index(data.cases_table["case"].astype(str))["iterations"],
+                                errors="coerce")
+        table["iterations"] = table["iterations"].fillna(table["case"].map(counted))
     table["reason"] = table["reason"].fillna("").astype(str).replace("nan", "")
     table["level"] = pd.to_numeric(table["level"], errors="coerce").astype("Int64")
     table["iterations"] = pd.to_numeric(table["iterations"], errors="coerce").astype("Int64")
