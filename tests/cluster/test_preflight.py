@@ -76,3 +76,16 @@ def test_unknown_partition_is_refused(monkeypatch):
     with pytest.raises(WorkflowError) as info:
         preflight.check_scheduler(ClusterSettings(partition="gpu"))
     assert "'gpu'" in str(info.value) and "local" in str(info.value)
+
+
+def test_cli_run_without_scheduler_renders_and_submits_nothing(monkeypatch, tmp_path, capsys):
+    from cluster_studies import make_study
+    from studyflow.cli import main
+    from studyflow.errors import EXIT_WORKFLOW
+
+    study = make_study(tmp_path, [1, 2], {"batch": 2})
+    monkeypatch.setenv("PATH", str(tmp_path / "empty"))
+    assert main(["run", str(study), "--executor", "slurm"]) == EXIT_WORKFLOW
+    assert "sbatch" in capsys.readouterr().err
+    assert not (study / "cases").exists()  # checked before anything was rendered
+    assert not (study / "profiles").exists()

@@ -22,6 +22,7 @@ import pytest
 from cluster_studies import make_cavity_study, make_study
 from studyflow import api
 from studyflow.cluster.outcome import submitted_jobs
+from studyflow.errors import WorkflowError
 
 pytestmark = pytest.mark.slurm
 
@@ -157,3 +158,15 @@ def test_cancelled_cluster_job_shows_the_scheduler_reason(cluster_runs):
     cases = pd.read_csv(study / "results" / "cases.csv").set_index("case")
     assert f"cluster job {m.group(1)} CANCELLED" in cases.loc["x99--m0", "reason"]
     assert api.status(study).failures[0].reason == bad.reason
+
+
+def test_job_the_scheduler_would_refuse_is_stopped_before_submitting(slurm_cluster, tmp_path):
+    # More memory than the node has: sbatch --test-only answers "Requested node configuration is
+    # not available" (SLURM 22.05); nothing may be rendered or submitted.
+    study = make_study(tmp_path, [1], {"partition": "local", "first_check_s": 2},
+                       {"cores": 1, "memory_mb": 50_000_000, "time_min": 3})
+    with pytest.raises(WorkflowError) as info:
+        api.run(study, executor="slurm", progress=False)
+    assert "SLURM would refuse" in str(info.value) and "--mem 50000000" in str(info.value)
+    assert "node configuration is not available" in str(info.value)
+    assert not (study / "cases").exists()
