@@ -161,3 +161,33 @@ def test_profiles_are_summarised_along_their_stations(built):
     orders = [richardson(f[2][i], f[1][i], f[0][i], 2.0)["order"] for i in range(12)]
     assert f"{sum(orders) / len(orders):.4g}" in page
     assert (result.index.parent / "tables" / "profile-summary.csv").is_file()
+
+
+def test_a_study_with_nothing_collected_still_gets_a_report(tmp_path):
+    from synthetic import write_study
+
+    root = write_study(tmp_path / "s", res=[1.0e4], angles=[0.0], fields="none")
+    for table in (root / "results").iterdir():
+        table.unlink()
+    result = build_report(root, fields=False)
+    assert result.counts == {"done": 2, "failed": 1, "pending": 0}  # from the case folders alone
+    assert any("No results have been collected yet" in n for n in result.notices)
+    assert result.index.is_file() and "linear solver diverged" in result.index.read_text()
+
+
+def test_cells_stand_in_for_h_when_sizes_are_unknown(tmp_path):
+    from synthetic import write_study
+
+    from studyflow.report.data import load
+    from studyflow.report.figures.convergence import value_vs_size
+
+    root = write_study(tmp_path / "s", res=[1.0e4], angles=[0.0], fields="none", failed=False, pending=False)
+    results = pd.read_csv(root / "results" / "results.csv")
+    results["h"] = float("nan")
+    results.to_csv(root / "results" / "results.csv", index=False)
+    data = load(root)
+    fig = value_vs_size(data.results, None, "dp", "Pa", [point_id(1.0e4, 0.0)])
+    ax = fig.axes[0]
+    assert ax.get_xlabel() == "cells" and ax.get_xscale() == "log"
+    xs = sorted(float(line.get_xdata()[0]) for line in ax.lines if line.get_marker() == "o")
+    assert xs == [50.0, 200.0, 800.0]  # 10 x 5 cells on level 0, refined by 2 in each direction
