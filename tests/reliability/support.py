@@ -113,7 +113,9 @@ def snapshot(root: Path) -> dict[str, tuple[int, int, bytes | None]]:
             p = Path(dirpath) / name
             st = p.lstat()
             data = p.read_bytes() if p.is_file() and not p.is_symlink() else None
-            out[str(p.relative_to(root))] = (st.st_mode, st.st_mtime_ns, data)
+            # A folder's own mtime changes with any entry added or removed, which is checked directly.
+            mtime = None if p.is_dir() and not p.is_symlink() else st.st_mtime_ns
+            out[str(p.relative_to(root))] = (st.st_mode, mtime, data)
     return out
 
 

@@ -1,0 +1,1 @@
+printf '{"q": 1}\n' > out.json
