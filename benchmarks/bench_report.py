@@ -11,7 +11,6 @@ import argparse
 import math
 import os
 import resource
-import shutil
 import sys
 import tempfile
 import time
@@ -21,9 +20,9 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT / "tests" / "report"))  # the synthetic study writer of the report tests
 sys.path.insert(0, str(ROOT))
 
-from synthetic import write_study  # noqa: E402
+from synthetic import write_study
 
-from studyflow.report import build_report  # noqa: E402
+from studyflow.report import build_report
 
 TARGETS = {100: 30.0, 1000: 180.0}
 
@@ -44,7 +43,7 @@ def main() -> int:
     for size in args.sizes:
         points = math.ceil(size / 3)  # three mesh levels per point
         n_re = math.ceil(points / 2)  # two louvre angles
-        res = list(10.0 ** (4 + 1.5 * (i / max(1, n_re - 1))) for i in range(n_re))
+        res = [10.0 ** (4 + 1.5 * (i / max(1, n_re - 1))) for i in range(n_re)]
         with tempfile.TemporaryDirectory(prefix="bench-report-") as tmp:
             t0 = time.perf_counter()
             root = write_study(Path(tmp) / "study", res=res, angles=[0.0, 4.0], iterations=args.iterations)

@@ -2,18 +2,17 @@
 
 from __future__ import annotations
 
-import math
 import os
 from collections import Counter
 from dataclasses import dataclass, field
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
-import numpy as np
 import pandas as pd
 
 from .. import __version__
+from ..analysis import profile_summary
 from ..errors import InputError, Problem
 from . import fields as fieldpics
 from . import page
@@ -26,7 +25,6 @@ from .figures.profiles import load_reference, profile_panels
 from .figures.sweeps import quantity_vs_parameter, swept
 from .provenance import failures, provenance
 from .tables import case_table, uncertainty_summary
-from ..analysis import profile_summary
 from .words import profile_sentence, sentence, verdict_class
 
 MAX_VERDICT_CARDS = 24
@@ -285,7 +283,7 @@ def build_report(study: str | os.PathLike | Any, out: str | os.PathLike | None =
     data = load(root)
     out_dir = Path(out) if out is not None else data.root / "report"
     b = _Builder(data, out_dir, renderer_argv)
-    built = datetime.now(timezone.utc)
+    built = datetime.now(UTC)
 
     ctable = case_table(data)
     counts = Counter(ctable["status"].astype(str))

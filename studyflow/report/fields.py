@@ -17,8 +17,8 @@ from pathlib import Path
 
 import numpy as np
 from matplotlib.collections import PolyCollection
-from matplotlib.patches import Rectangle
 from matplotlib.figure import Figure
+from matplotlib.patches import Rectangle
 from matplotlib.tri import Triangulation
 
 from . import style
@@ -98,7 +98,7 @@ def render_pictures(jobs: list[PictureJob], argv: list[str] | None = None, timeo
         env = dict(os.environ)
         env.setdefault("VTK_DEFAULT_OPENGL_WINDOW", "vtkEGLRenderWindow")
         try:
-            proc = subprocess.run(command, capture_output=True, text=True, timeout=timeout, env=env)
+            proc = subprocess.run(command, capture_output=True, text=True, timeout=timeout, env=env, check=False)
         except subprocess.TimeoutExpired:
             return {j.png: f"the off-screen renderer did not finish within {timeout:.0f} s" for j in jobs}
         except OSError as exc:

@@ -6,7 +6,7 @@ import json
 import platform
 import sys
 from collections import Counter
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 
 import pandas as pd
 
@@ -45,7 +45,7 @@ def solver_versions(data: StudyData, limit: int = 5) -> list[str]:
 
 
 def provenance(data: StudyData, case_table: pd.DataFrame, built: datetime | None = None) -> list[tuple[str, str]]:
-    built = built or datetime.now(timezone.utc)
+    built = built or datetime.now(UTC)
     counts = Counter(case_table["status"].astype(str)) if len(case_table) else Counter()
     starts = sorted(c.started for c in data.cases.values() if c.started)
     ends = sorted(c.ended for c in data.cases.values() if c.ended)
@@ -64,13 +64,13 @@ def provenance(data: StudyData, case_table: pd.DataFrame, built: datetime | None
         ("report built (UTC)", built.strftime("%Y-%m-%d %H:%M:%S")),
         ("first case started", starts[0] if starts else "-"),
         ("last case ended", ends[-1] if ends else "-"),
-        ("cases", f"{len(case_table)} total: {counts.get('done', 0)} done, {counts.get('failed', 0)} failed, "
-                  f"{counts.get('pending', 0)} pending"),
+        ("cases", (f"{len(case_table)} total: {counts.get('done', 0)} done, {counts.get('failed', 0)} failed, "
+                   f"{counts.get('pending', 0)} pending")),
         ("points x levels", f"{points} x {levels}"),
         ("quantities", ", ".join(quantities) or "-"),
     ]
     for stem, path in sorted(data.table_files.items()):
-        stamp = datetime.fromtimestamp(path.stat().st_mtime, timezone.utc).strftime("%Y-%m-%d %H:%M:%S")
+        stamp = datetime.fromtimestamp(path.stat().st_mtime, UTC).strftime("%Y-%m-%d %H:%M:%S")
         rows.append((f"{stem} table", f"{path.relative_to(data.root)} (written {stamp} UTC)"))
     return rows
 

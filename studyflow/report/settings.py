@@ -147,8 +147,8 @@ def load_settings(root: Path) -> ReportSettings:
 
 
 def _references(root: Path, path: Path, block: Any, problems: list[Problem]) -> dict[str, Reference]:
-    from ..fsutil import confined  # local: keeps the module's import list short for readers
     from ..errors import UnsafePathError
+    from ..fsutil import confined  # local: keeps the module's import list short for readers
 
     if block is None:
         return {}

@@ -10,7 +10,7 @@ import matplotlib
 
 matplotlib.use("Agg")  # no display on build machines; set before pyplot is imported anywhere
 
-from matplotlib import rcParams  # noqa: E402
+from matplotlib import rcParams
 
 INK = "#1d2a35"  # text and axes
 PAPER = "#fbfaf6"  # page and figure background

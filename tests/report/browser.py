@@ -59,7 +59,7 @@ class Browser:
                                      headers={"Content-Type": "application/json"})
         with urllib.request.urlopen(req, timeout=60) as resp:
             out = json.loads(resp.read().decode() or "{}")
-        return out.get("value", out) if isinstance(out, dict) and "value" in out and path != "/session" else out.get("value", out)
+        return out.get("value", out) if isinstance(out, dict) else out
 
     def open(self, url: str) -> None:
         self._call("POST", f"/session/{self.session}/url", {"url": url})
@@ -84,8 +84,8 @@ class Browser:
         try:
             if getattr(self, "session", None):
                 self._call("DELETE", f"/session/{self.session}")
-        except Exception:
-            pass
+        except (OSError, ValueError):
+            pass  # the driver is stopped below either way
         self.driver.terminate()
         try:
             self.driver.wait(10)

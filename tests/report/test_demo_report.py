@@ -14,7 +14,7 @@ import pandas as pd
 import pytest
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "examples"))
-from tube_wall_support import STUDY, TEMPLATE, exact_heat_flow, needs_tools  # noqa: E402
+from tube_wall_support import STUDY, TEMPLATE, exact_heat_flow, needs_tools
 
 pytestmark = [pytest.mark.examples, needs_tools]
 
