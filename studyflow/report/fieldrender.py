@@ -51,6 +51,8 @@ def main(argv: list[str]) -> int:
                              scalar_bar_args={"title": item.get("title", item["array"]), "color": "#1d2a35",
                                               "vertical": True, "position_x": 0.86, "position_y": 0.1,
                                               "height": 0.8, "width": 0.06})
+            plotter.add_text(item.get("title", item["array"]), position="upper_left", font_size=10,
+                             color="#1d2a35")
             bounds = mesh.bounds
             if abs(bounds[5] - bounds[4]) <= 1e-12 * max(1.0, abs(bounds[1] - bounds[0])):
                 plotter.view_xy()

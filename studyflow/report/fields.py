@@ -69,13 +69,23 @@ def read_mesh(path: Path):
 
 
 def choose_arrays(mesh) -> list[tuple[str, str]]:
-    """Up to ``MAX_ARRAYS`` (name, association) pairs worth drawing; point data first."""
+    """Up to ``MAX_ARRAYS`` (name, association) pairs worth drawing; point data first.
+
+    A cell array with no finite value on the surface cells (a wall quantity stored on boundary
+    lines only, NaN on the cells) would draw as a blank picture and is left out.
+    """
     out: list[tuple[str, str]] = []
     for name in mesh.point_data:
-        if name not in SKIP_ARRAYS:
+        if name not in SKIP_ARRAYS and np.isfinite(_values(mesh, name, "point")).any():
             out.append((name, "point"))
     for name in mesh.cell_data:
-        if name not in SKIP_ARRAYS and name not in [n for n, _ in out]:
+        if name in SKIP_ARRAYS or name in [n for n, _ in out]:
+            continue
+        try:
+            values = _values(mesh, name, "cell")
+        except ValueError:  # no surface cells at all
+            continue
+        if values.size and np.isfinite(values).any():
             out.append((name, "cell"))
     return out[:MAX_ARRAYS]
 
@@ -168,7 +178,8 @@ def fallback_picture(mesh, array: str, association: str, title: str) -> Figure:
     if association == "point":
         art = ax.tripcolor(tri, values, shading="gouraud", cmap="cividis")
     else:
-        art = ax.tripcolor(tri, facecolors=values[np.concatenate(owner)], cmap="cividis")
+        # no antialiasing: the seams between the two triangles of a quad would show as light lines
+        art = ax.tripcolor(tri, facecolors=values[np.concatenate(owner)], cmap="cividis", antialiased=False)
     fig.colorbar(art, ax=ax, label=array)
     return fig
 

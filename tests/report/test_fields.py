@@ -74,3 +74,16 @@ def test_mesh_family_coarse_to_fine(tmp_path):
         assert len(polys.get_paths()) == len(mesh.cells[0].data)
         lo, hi = ax.dataLim.min, ax.dataLim.max
         assert tuple(lo) == pytest.approx((0.0, 0.0)) and tuple(hi) == pytest.approx((1.0, 0.5))
+
+
+def test_xdmf_fields_are_drawn_through_meshio(tmp_path):
+    """meshio's static XDMF (HDF5 heavy data, needs h5py) is read through meshio, not by pyvista itself."""
+    pytest.importorskip("h5py")
+    write_vtu(tmp_path / "f.vtu", 6, 3)
+    mesh = meshio.read(tmp_path / "f.vtu")
+    meshio.write(tmp_path / "f.xdmf", mesh)
+    job = PictureJob(tmp_path / "f.xdmf", "u", "point", tmp_path / "u.png", "u")
+    status = render_pictures([job])
+    if "OpenGL" in status[job.png] or "crashed" in status[job.png]:
+        pytest.skip(f"no off-screen OpenGL on this machine: {status[job.png]}")
+    assert status[job.png] == "ok" and job.png.stat().st_size > 1000
