@@ -31,6 +31,7 @@ class QuantityCheck:
     atol: float = 0.0
     worst: dict[str, Any] = field(default_factory=dict)
     reason: str = ""
+    compared: bool = True
 
     def to_json(self) -> dict[str, Any]:
         return {k: (None if isinstance(v, float) and not math.isfinite(v) else v) for k, v in self.__dict__.items()}
@@ -86,6 +87,9 @@ def compare_results(shipped: pd.DataFrame, remade: pd.DataFrame, cases: list[str
         rtol, atol = settings.for_quantity(str(quantity))
         check.rtol, check.atol = rtol, atol
         checks.append(check)
+        if str(quantity) in settings.ignore:
+            check.compared, check.reason = False, "not compared (audit.ignore)"
+            continue
         if new.empty:
             check.ok, check.reason = False, "not in the re-run's results"
             continue
@@ -110,6 +114,9 @@ def compare_histories(shipped: pd.DataFrame, remade: pd.DataFrame, cases: list[s
         new = remade[(remade["case"].astype(str) == str(case)) & (remade["quantity"] == quantity)]
         check = QuantityCheck(str(case), str(quantity), "iterations")
         checks.append(check)
+        if str(quantity) in settings.ignore:
+            check.compared, check.reason = False, "not compared (audit.ignore)"
+            continue
         rtol, atol = settings.for_quantity(str(quantity))
         if new.empty:
             check.ok, check.reason, check.rtol, check.atol = False, "no history in the re-run", rtol, atol

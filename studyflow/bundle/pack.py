@@ -209,7 +209,7 @@ def pack(study: str | os.PathLike, archive: str | os.PathLike | None = None, *, 
     layout = locate(study)
     # a bundle is only worth sending if its study file loads and its audit block is valid
     spec = load_study(layout.study_file)
-    settings_from(layout.raw.get("audit"), str(layout.study_file))
+    settings_from(layout.raw.get("audit"), str(layout.study_file), quantities=spec.quantities)
     inputs = _rendered_inputs(spec)
     # no run may change the study while it is read: hold the study's run lock (StudyBusyError
     # when a run is going)

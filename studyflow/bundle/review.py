@@ -197,7 +197,7 @@ def audit(source: str | Path, *, into: str | Path | None = None, rerun: RerunCho
         folder = source
     else:
         raise AuditError(f"{source}: no such archive or folder")
-    root = find_root(folder)
+    root = find_root(folder).resolve()
     report = AuditReport(bundle=str(source), root=str(root))
     manifest = Manifest.load(root)
     report.study = manifest.study_name

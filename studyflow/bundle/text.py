@@ -85,9 +85,14 @@ def audit_text(report: AuditReport, limit: int = 40) -> str:
             d = rr.detail
             checks = d.get("checks", [])
             bad = sum(1 for c in checks if not c["ok"])
-            out.append(f"re-run: {len(d.get('cases', []))} cases ({d.get('how')}): {len(checks)} quantities "
-                       f"compared, {bad} outside tolerance")
+            skipped = sum(1 for c in checks if not c.get("compared", True))
+            out.append(f"re-run: {len(d.get('cases', []))} cases ({d.get('how')}): {len(checks) - skipped} "
+                       f"quantities compared, {bad} outside tolerance"
+                       + (f", {skipped} not compared (audit.ignore)" if skipped else ""))
             for c in checks[:limit]:
+                if not c.get("compared", True):
+                    out.append(f"  --   {c['case']} {c['quantity']}: {c['reason']}")
+                    continue
                 mark = "ok  " if c["ok"] else "FAIL"
                 out.append(f"  {mark} {c['case']} {c['quantity']} ({c['kind']}, {c['values']} values, "
                            f"max |diff| {c['max_abs_diff']:.3g}, rtol {c['rtol']:g}, atol {c['atol']:g})"

@@ -8,6 +8,7 @@ audit:
     drag: {rtol: 1.0e-4}
     mass_residual: {rtol: 0.05, atol: 1.0e-10}
   uncertainty: {rtol: 1.0e-9, atol: 1.0e-12}   # for the re-computed uncertainty table
+  ignore: [wall_time]     # quantities no re-run reproduces: listed, not compared
 ```
 
 A number passes when ``|new - shipped| <= atol + rtol * |shipped|``, the test of
@@ -43,6 +44,8 @@ class AuditSettings(BaseModel):
     atol: float = Field(DEFAULT_ATOL, ge=0)
     per_quantity: dict[str, Tolerance] = {}
     uncertainty: Tolerance = Tolerance()
+    ignore: list[str] = Field([], description="quantities a re-run cannot reproduce (wall times, host "
+                                              "names): listed in the report, not compared")
 
     def for_quantity(self, name: str) -> tuple[float, float]:
         own = self.per_quantity.get(name)
@@ -55,18 +58,30 @@ class AuditSettings(BaseModel):
         return (u.rtol if u.rtol is not None else self.rtol, u.atol if u.atol is not None else self.atol)
 
 
-def settings_from(raw_block: Any, file: str = "study.yaml") -> AuditSettings:
-    """Validate the ``audit:`` block (a mapping or None) into settings, naming any bad key."""
+def settings_from(raw_block: Any, file: str = "study.yaml", quantities: Any = None) -> AuditSettings:
+    """Validate the ``audit:`` block (a mapping or None) into settings, naming any bad key.
+
+    With ``quantities`` (the study's quantity names) a name in ``per_quantity`` or ``ignore``
+    that is not one of them is an error too: a typo would otherwise silently do nothing."""
     if raw_block is None:
         return AuditSettings()
     if hasattr(raw_block, "model_dump"):
         raw_block = raw_block.model_dump(exclude_none=True)
     try:
-        return AuditSettings.model_validate(raw_block)
+        settings = AuditSettings.model_validate(raw_block)
     except ValidationError as exc:
         problems = [Problem(file, "audit." + ".".join(str(p) for p in err["loc"]), err.get("input"), err["msg"])
                     for err in exc.errors()]
         raise InputError(problems) from exc
+    if quantities is not None:
+        known = set(quantities)
+        problems = [Problem(file, f"audit.per_quantity.{n}", n, f"no quantity {n!r} in the study")
+                    for n in settings.per_quantity if n not in known]
+        problems += [Problem(file, f"audit.ignore[{i}]", n, f"no quantity {n!r} in the study")
+                     for i, n in enumerate(settings.ignore) if n not in known]
+        if problems:
+            raise InputError(problems)
+    return settings
 
 
 def close(new: float, shipped: float, rtol: float, atol: float) -> bool:

@@ -94,16 +94,25 @@ def toy(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> Toy:
 
 
 def run_toy(toy: Toy) -> None:
-    """Run, collect and assess the toy study with the project's own workflow (Snakemake driver),
-    collection and analysis, as ``studyflow run`` / ``collect`` / ``assess`` do."""
+    """Render, run, collect and assess the toy study with the project's own layers: each step by
+    the workflow's step runner (what every workflow job calls; the engine itself is exercised by
+    the plate demo and by the audit's full re-run), then collection and analysis."""
+    import subprocess
+    import sys
+
     from studyflow.analysis import assess_study
     from studyflow.collect import collect_study, write_tables
+    from studyflow.design import build_design
+    from studyflow.render import render_study
     from studyflow.spec import load_study
-    from studyflow.workflow.run import options, run_study
 
     study = load_study(toy.study_file)
-    outcome = run_study(study, options=options(cores=2, progress=False))
-    assert outcome.exit_code == 0, [(c.case, c.reason) for c in outcome.cases]
+    design = build_design(study)
+    render_study(study, design)
+    for case in design.cases:
+        for step in study.step_names():
+            subprocess.run([sys.executable, "-m", "studyflow.workflow.runstep", str(study.cases_dir / case.id),
+                            step], check=True)
     write_tables(study.root, collect_study(study))
     assess_study(study.file, write=True)
 

@@ -95,3 +95,11 @@ def test_pack_refuses_while_a_run_holds_the_study(toy, tmp_path: Path) -> None:
         pack(toy.study_dir, tmp_path / "b.tar.gz")
     assert info.value.exit_code == EXIT_BUSY and not (tmp_path / "b.tar.gz").exists()
     assert pack(toy.study_dir, tmp_path / "b.tar.gz").archive.is_file()
+
+
+def test_audit_block_naming_an_unknown_quantity_is_refused(toy, tmp_path: Path) -> None:
+    text = toy.study_file.read_text().replace("per_quantity: {res: {rtol: 1.0e-6}}",
+                                              "per_quantity: {res: {rtol: 1.0e-6}}\n  ignore: [wall_tme]")
+    toy.study_file.write_text(text)
+    with pytest.raises(InputError, match=r"audit\.ignore\[0\].*no quantity 'wall_tme'"):
+        pack(toy.study_dir, tmp_path / "b.tar.gz")
