@@ -145,3 +145,13 @@ def test_consistently_forged_uncertainty_is_caught_by_recomputation(packed_toy, 
     assert any(f.startswith("manifest digest") and sent in f for f in report.failures)
     diffs = report.phases["uncertainty"].detail["comparison"]["differences"]
     assert [(d["row"]["point"], d["row"]["quantity"], d["column"]) for d in diffs] == [("k2.5", "drag", "U")]
+
+
+def test_relative_paths_from_the_command_line(packed_toy, tmp_path: Path, monkeypatch) -> None:
+    import shutil
+
+    shutil.copy2(packed_toy.archive, tmp_path / "b.tar.gz")
+    monkeypatch.chdir(tmp_path)
+    report = audit("b.tar.gz", into="review")
+    assert report.ok, report.failures
+    assert report.phases["uncertainty"].ran
