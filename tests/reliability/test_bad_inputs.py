@@ -18,7 +18,7 @@ import yaml
 from studyflow.errors import EXIT_TEMPLATE
 
 from badinputs import CORPUS, KINDS, prepare
-from support import snapshot
+from relsupport import snapshot
 
 EXPECTED: dict[str, dict[str, dict]] = yaml.safe_load((CORPUS / "expected.yaml").read_text())
 ENTRIES = [(kind, name) for kind in KINDS for name in KINDS[kind][1]()]

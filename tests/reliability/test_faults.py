@@ -29,7 +29,7 @@ from studyflow import api
 from studyflow.errors import EXIT_BUSY, EXIT_CASES_FAILED, EXIT_INTERRUPTED, EXIT_OK, StudyBusyError
 from studyflow.workflow.lock import holder
 
-from support import cli, executions, fault_study, gone, processes_under, run_direct, status, wait_for
+from relsupport import cli, executions, fault_study, gone, processes_under, run_direct, status, wait_for
 
 FAULTS = {"good": "ok", "crash": "crash", "hang": "hang", "exitv": "exitvalid", "nan": "nan", "inf": "inf",
           "trunc": "truncated", "miss": "missing"}
