@@ -231,6 +231,11 @@ def audit(source: str | Path, *, into: str | Path | None = None, rerun: RerunCho
                 report.failures.append(f"re-rendered input not in the bundle: {p}")
             for c in outcome.extra_cases:
                 report.failures.append(f"shipped case not in the study's design: {c}")
+            if outcome.notes:
+                # one note for all: a limit override touches every case's step record alike
+                report.notes.append({"what": "time limit override", "name": "step records",
+                                     "now": f"{len(outcome.notes)} step records differ only in the time limit "
+                                            f"(the study was run with a limit override), e.g. {outcome.notes[0]}"})
             case_ids = outcome.case_ids
         except _PHASE_ERRORS as exc:
             ph.ran, ph.ok, ph.error = True, False, _why(exc)

@@ -128,3 +128,15 @@ def test_cases_never_run_are_not_counted_as_reproduced(toy, tmp_path: Path) -> N
     report = audit(tmp_path / "r", rerun=RerunChoice("cases", cases=("k1--m1",)), engine="direct")
     assert report.phases["rerun"].detail["checks"] == []
     assert [n["name"] for n in report.notes if n["what"] == "not compared"] == ["k1--m1"]
+
+
+def test_time_limit_override_is_a_note_not_a_failure(toy, tmp_path: Path) -> None:
+    # ``run --timeout`` renders the step records with another limit; nothing else differs
+    from studyflow.render import make_renderer, render_all
+
+    s = load_study(toy.study_file)
+    d = build_design(s)
+    render_study(s, d, rendered=render_all(s, d, make_renderer(s, time_limit_s=42.0)))
+    report = audit(pack(toy.study_dir, tmp_path / "t.tar.gz").archive, into=tmp_path / "r")
+    assert report.ok, report.failures
+    assert [n["what"] for n in report.notes if n["what"] == "time limit override"] == ["time limit override"]
