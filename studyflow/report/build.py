@@ -337,6 +337,8 @@ def build_report(study: str | os.PathLike | Any, out: str | os.PathLike | None =
     table_ctx = []
     for t in tables:
         shown = t.name in ("uncertainty-summary", "profile-summary", "cases")
+        if set(t.files) == {"CSV"}:
+            t.title += f" ({len(t.frame)} rows: CSV only, too long to typeset)"
         table_ctx.append({"id": f"t-{t.name}", "title": t.title,
                           "files": [(k, v.relative_to(out_dir).as_posix()) for k, v in t.files.items()],
                           "html": page.table_html(t.frame) if shown and t.name != "cases" else

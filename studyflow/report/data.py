@@ -46,6 +46,7 @@ class CaseState:
     wall_time: float | None = None
     started: str | None = None
     ended: str | None = None
+    hosts: tuple[str, ...] = ()
     folder: Path | None = None
 
 
@@ -145,6 +146,7 @@ def scan_cases(root: Path, steps: list[str]) -> dict[str, CaseState]:
         state.wall_time = sum(walls) if walls else None
         starts = sorted(str(d["started"]) for d in statuses.values() if d.get("started"))
         ends = sorted(str(d["ended"]) for d in statuses.values() if d.get("ended"))
+        state.hosts = tuple(sorted({str(d["host"]) for d in statuses.values() if d.get("host")}))
         state.started = starts[0] if starts else None
         state.ended = ends[-1] if ends else None
         out[state.case] = state

@@ -94,7 +94,7 @@ def write_study(root: Path, res: list[float] = (1.0e4, 3.0e4, 1.0e5), angles: li
             if status != "pending":
                 (folder / ".studyflow" / "solve.status.json").write_text(json.dumps({
                     "status": "ok" if status == "done" else "failed", "reason": reason.split(": ", 1)[-1],
-                    "exit_code": 0 if status == "done" else 3, "wall_time": wall,
+                    "exit_code": 0 if status == "done" else 3, "wall_s": wall, "host": f"node-{1 + level}",
                     "started": f"2026-03-0{1 + level}T10:00:00Z", "ended": f"2026-03-0{1 + level}T10:05:00Z"}),
                     encoding="utf-8")
             case_rows.append({"case": case, "point": pid, "level": level, "status": status, "reason": reason,

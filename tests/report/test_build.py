@@ -76,6 +76,7 @@ def test_provenance_and_cautions(built):
     page = _page(built)
     assert hashlib.sha256((root / "study.yaml").read_bytes()).hexdigest() in page
     assert "studyflow-fv 0.1.0" in page  # the solver version as the solver wrote it into metrics.json
+    assert "node-1, node-2, node-3" in page  # the hosts the step runner recorded per case
     for words in ("Verification is not validation", "review by a qualified engineer",
                   "Local codes and licensed practice govern"):
         assert words in page
