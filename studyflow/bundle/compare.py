@@ -98,11 +98,29 @@ def compare_results(shipped: pd.DataFrame, remade: pd.DataFrame, cases: list[str
             if s_old != s_new:
                 check.ok, check.reason = False, f"status {'/'.join(s_old)} shipped, {'/'.join(s_new)} re-made"
                 continue
+        if "converged" in old and "converged" in new:
+            c_old, c_new = _flags(old["converged"]), _flags(new["converged"])
+            if c_old != c_new:
+                check.ok, check.reason = False, f"converged {c_old} shipped, {c_new} re-made"
+                continue
         o = old.sort_values("coord", kind="stable") if "coord" in old else old
         n = new.sort_values("coord", kind="stable") if "coord" in new else new
         coords = (o["coord"].to_numpy(), n["coord"].to_numpy()) if kind == "profile" and "coord" in o else None
         _series_check(check, o["value"].to_numpy(), n["value"].to_numpy(), rtol, atol, coords)
     return checks
+
+
+def _flags(col: pd.Series) -> str:
+    """The case's converged flag as text (one value per case; missing shown as 'unknown')."""
+    def one(v: Any) -> str:
+        if v is None or (not isinstance(v, str) and pd.isna(v)):
+            return "unknown"
+        if isinstance(v, str):  # a CSV read without dtypes
+            return v.strip().lower() if v.strip() else "unknown"
+        return str(bool(v)).lower()
+
+    vals = sorted({one(v) for v in col})
+    return "/".join(vals)
 
 
 def compare_histories(shipped: pd.DataFrame, remade: pd.DataFrame, cases: list[str],
