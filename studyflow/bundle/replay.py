@@ -50,6 +50,7 @@ def copy_inputs(root: Path, manifest: Manifest, scratch: Path) -> Path:
     its stored copy in the scratch study file (the only edit ever made to a study file)."""
     if scratch.exists() and any(scratch.iterdir()):
         raise AuditError(f"scratch folder {scratch} is not empty")
+    root = root.resolve()  # study_dir comes back resolved; the walk below must match it
     study_dir, _ = _study_paths(root, manifest)
     payload_root = root / "payload"
     for src in sorted(payload_root.rglob("*")):
