@@ -101,7 +101,7 @@ def plate(prob: Problem, u: np.ndarray, v: np.ndarray, p: np.ndarray) -> dict[st
         r = np.concatenate([[0.0], prof[yc < y_e], [ue]]) / ue
         dstar = float(np.trapezoid(1 - r, y))
         theta = float(np.trapezoid(r * (1 - r), y))
-        stations.append({"x": xs_, "re_x": xs_ / nu, "cf": float(np.interp(xs_, xs, cf)),
+        stations.append({"x": xs_, "re_x": xs_ * prob.config.reynolds, "cf": float(np.interp(xs_, xs, cf)),
                          "delta_star": dstar, "theta": theta, "shape_factor": dstar / theta, "u_edge": ue})
     profiles = []
     for xs_ in prob.config.extra["profile_stations"]:
@@ -109,7 +109,7 @@ def plate(prob: Problem, u: np.ndarray, v: np.ndarray, p: np.ndarray) -> dict[st
         profiles.append({"x": xs_, "y": [0.0] + yc.tolist(), "u": [0.0] + prof.tolist(),
                          "eta": (np.concatenate([[0.0], yc]) / np.sqrt(nu * xs_)).tolist()})
     return {
-        "drag": {"cd": cd, "reynolds": 1.0 / nu},
+        "drag": {"cd": cd, "reynolds": prob.config.reynolds},
         "cf": {"x": xs[keep].tolist(), "values": cf[keep].tolist()},
         "stations": {k: [s[k] for s in stations] for k in stations[0]},
         "profiles": profiles,
