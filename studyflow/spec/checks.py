@@ -286,8 +286,9 @@ def _check_quantities(src: YamlSource, quantities: Any, iteration: Any) -> list[
             if why and not q["file"].startswith(".studyflow/"):
                 out.append(p(("quantities", name, "file"), q["file"], why))
     if isinstance(iteration, dict) and isinstance(quantities, dict):
-        for j, r in enumerate(iteration.get("residuals") or []):
-            if r not in quantities:
+        residuals = iteration.get("residuals")
+        for j, r in enumerate(residuals if isinstance(residuals, list) else []):
+            if isinstance(r, str) and r not in quantities:  # other types: the schema reports them
                 out.append(p(("iteration", "residuals", j), r, "is not a quantity of this study"))
         # ``flag`` may name a quantity the collection layer finds without a declaration (DEVELOPERS.md).
     return out
