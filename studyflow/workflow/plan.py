@@ -73,8 +73,8 @@ class Plan:
         return pd.DataFrame([s.__dict__ for s in self.steps], columns=["case", "step", "state", "reason"])
 
 
-def _case_plan(study: Study, rc: RenderedCase, shas: dict[int, str]) -> list[StepPlan]:
-    case_dir = str(study.cases_dir / rc.case.id)
+def _case_plan(cases_dir: str, rc: RenderedCase, shas: dict[int, str]) -> list[StepPlan]:
+    case_dir = os.path.join(cases_dir, rc.case.id)
     case_doc = json.loads(rc.case_json)
     p_hash, m_hash = sig.params_hash(case_doc), sig.mesh_hash(case_doc)
     out: list[StepPlan] = []
@@ -167,8 +167,9 @@ def compute_plan(study: Study, rendered: list[RenderedCase], removed: tuple[str,
     """The plan for every rendered case (``render.render_all``), compared with what is on disk."""
     shas: dict[int, str] = {}
     steps: list[StepPlan] = []
+    cases_dir = str(study.cases_dir)  # once: the property goes through pydantic and pathlib
     for rc in rendered:
-        steps += _case_plan(study, rc, shas)
+        steps += _case_plan(cases_dir, rc, shas)
     return Plan(steps, removed, tuple(study.step_names()))
 
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import sys
 from dataclasses import dataclass, field
 from typing import Any, Callable, Sequence
 
@@ -85,6 +86,10 @@ def run_study(study: Study, design: Design | None = None, options: EngineOptions
         clear_stale_markers(study, plan)
         cases = plan.cases_to_run()
         engine = None
+        if cases and options.progress:
+            why = ", ".join(f"{n} {r}" for r, n in plan.reasons().most_common(3))
+            say = report or (lambda text, final: print(text, file=sys.stderr, flush=True))
+            say(f"studyflow: {len(cases)} of {len(design.cases)} cases to run ({why})", True)
         if cases:
             engine = run_engine(study, cases, options, report, inherit_fds=(lock.fd,) if lock.fd else ())
         steps = study.step_names()

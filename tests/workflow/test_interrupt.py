@@ -81,6 +81,9 @@ def test_sigint_to_the_group_then_rerun(tmp_path: Path) -> None:
     proc = start_run(root)
     wait_for(lambda: done_markers(root) >= 2)
     pgid = engine_pgid(root)
+    st = api.status(root)  # from another process while the run goes on
+    assert st.running is not None and st.running["pid"] == proc.pid
+    assert st.counts()["done"] >= 2 and st.time_left_s() is not None
     os.killpg(proc.pid, signal.SIGINT)  # Ctrl-C in the terminal: the command's whole group
     assert proc.wait(timeout=60) == EXIT_INTERRUPTED
     wait_for(lambda: gone(pgid), 30)  # nothing of the engine outlives the run
