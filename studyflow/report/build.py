@@ -103,9 +103,15 @@ class _Builder:
 
     # --- quantities --------------------------------------------------------------------------------
     def result_quantities(self, res: pd.DataFrame) -> list[str]:
-        """Quantities that get a section: not histories, residuals or the cell count behind h."""
-        skip = set(self.data.settings.not_results)
-        return [q for q in dict.fromkeys(res["quantity"].astype(str)) if q not in skip]
+        """Quantities that get a section: those the analysis assesses (``analysis.quantities``) and those
+        with a reference curve, else every quantity but histories, residuals, the convergence flag and
+        the cell count behind h."""
+        s = self.data.settings
+        names = list(dict.fromkeys(res["quantity"].astype(str)))
+        if s.assessed is not None:
+            keep = set(s.assessed) | set(s.references)
+            return [q for q in names if q in keep]
+        return [q for q in names if q not in set(s.not_results)]
 
     def quantity_sections(self) -> list[dict[str, Any]]:
         data, res = self.data, self.data.results
@@ -127,21 +133,24 @@ class _Builder:
                 sec["more"] = (f"Figures show the first {len(points)} of {len(all_points)} points; "
                                "every point is in the uncertainty table.")
             ref = data.settings.references.get(quantity)
-            ref_frame = load_reference(ref, str(data.settings.study_file)) if ref else None
+            ref_frame = load_reference(ref, str(data.settings.study_file)) if ref and ref.file else None
             if kind == "profile":
-                f = profile_panels(res, data.uncertainty, quantity, unit, points,
-                                   ref_frame if ref and ref.x not in data.parameters else None,
+                on_profile = ref_frame is not None and ref.x not in data.parameters
+                f = profile_panels(res, data.uncertainty, quantity, unit, points, ref_frame if on_profile else None,
                                    ref.label if ref else "reference", ref.point if ref else None)
                 sec["figures"].append(self.save(
                     f, f"profile-{slug(quantity)}", f"{quantity} along its stations",
                     "One line per mesh level, the extrapolated profile and the finest-mesh band ± U"
-                    + (f"; squares: {ref.label}." if ref and ref.x not in data.parameters else "."), sec["id"]))
+                    + (f"; squares: {ref.label}." if on_profile else "."), sec["id"]))
             else:
-                f = value_vs_size(res, unc, quantity, unit, points)
+                value_ref = ref if ref is not None and ref.value is not None else None
+                f = value_vs_size(res, unc, quantity, unit, points, value_ref)
                 sec["figures"].append(self.save(
                     f, f"value-{slug(quantity)}", f"{quantity} against mesh size",
                     "Dots: the value on each mesh level (darker is finer). Star and dashed line: the extrapolated "
-                    "value at h = 0. Band: the finest-mesh value ± U.", sec["id"]))
+                    "value at h = 0. Band: the finest-mesh value ± U."
+                    + (f" Dash-dotted line: {value_ref.label} ({fmt(value_ref.value)})." if value_ref else ""),
+                    sec["id"]))
                 f = error_vs_size(res, unc, quantity, formal, all_points[:60])
                 sec["figures"].append(self.save(
                     f, f"error-{slug(quantity)}", f"{quantity}: error against mesh size",
@@ -175,7 +184,7 @@ class _Builder:
                 others = [o for o in swept_params if o != p]
                 ref = data.settings.references.get(quantity)
                 ref_frame = None
-                if ref is not None and ref.x == p:
+                if ref is not None and ref.file is not None and ref.x == p:
                     ref_frame = load_reference(ref, str(data.settings.study_file))
                 f = quantity_vs_parameter(res, _scalar_unc(data, quantity), quantity, unit, p, others,
                                           ref_frame, ref.label if ref else "")

@@ -13,6 +13,7 @@ report:
       y: cf                    # column for the reference value
       label: Blasius (1908)    # optional legend text
       point: Re1e4             # optional: draw it for this point only
+    drag: {value: 0.013513, label: Blasius with leading-edge correction}   # or one reference value
   points: 12                   # optional: at most this many points drawn per convergence figure
 ```
 """
@@ -34,12 +35,15 @@ STUDY_FILE = "study.yaml"
 
 @dataclass(frozen=True)
 class Reference:
+    """A reference curve (``file`` with columns ``x`` and ``y``) or a single reference ``value``."""
+
     quantity: str
-    file: Path
-    x: str
-    y: str
+    file: Path | None
+    x: str | None
+    y: str | None
     label: str
     point: str | None = None  # draw on this point's panels only (a reference often holds for one point)
+    value: float | None = None
 
 
 @dataclass(frozen=True)
@@ -61,6 +65,7 @@ class ReportSettings:
     max_points: int = 12
     # quantities that are not results to assess: histories, residuals, the cell count behind h
     not_results: tuple[str, ...] = ()
+    assessed: tuple[str, ...] | None = None  # analysis.quantities when the study names them
 
 
 FIELD_SUFFIXES = (".vtu", ".vtk", ".vtp", ".vts", ".vtr", ".xdmf", ".xmf")
@@ -111,6 +116,10 @@ def load_settings(root: Path) -> ReportSettings:
     not_results += [str(r) for r in residuals if isinstance(r, str)] if isinstance(residuals, list) else []
     if isinstance(mesh.get("cells_from"), str):
         not_results.append(mesh["cells_from"])
+    if isinstance(iteration.get("flag"), str):
+        not_results.append(iteration["flag"])
+    assessed = analysis.get("quantities")
+    assessed = tuple(str(q) for q in assessed) if isinstance(assessed, list) else None
     report = doc.get("report") or {}
     problems: list[Problem] = []
     if not isinstance(report, dict):
@@ -143,6 +152,7 @@ def load_settings(root: Path) -> ReportSettings:
         references=refs,
         max_points=max_points,
         not_results=tuple(dict.fromkeys(not_results)),
+        assessed=assessed,
     )
 
 
@@ -161,13 +171,25 @@ def _references(root: Path, path: Path, block: Any, problems: list[Problem]) -> 
         if not isinstance(ref, dict):
             problems.append(Problem(str(path), key, ref, "must be a mapping with file, x and y"))
             continue
+        allowed = {"file", "x", "y", "label", "point", "value"}
+        for k in sorted(set(ref) - allowed):
+            problems.append(Problem(str(path), f"{key}.{k}", ref[k], f"unknown key (allowed: {', '.join(sorted(allowed))})"))
+        point = None if ref.get("point") is None else str(ref["point"])
+        if "value" in ref:
+            value = ref["value"]
+            if isinstance(value, bool) or not isinstance(value, (int, float)):
+                problems.append(Problem(str(path), f"{key}.value", value, "must be a number"))
+                continue
+            for k in ("file", "x", "y"):
+                if k in ref:
+                    problems.append(Problem(str(path), f"{key}.{k}", ref[k], "give either value or file, x and y"))
+            out[str(name)] = Reference(str(name), None, None, None, str(ref.get("label") or "reference"), point,
+                                       float(value))
+            continue
         missing = [k for k in ("file", "x", "y") if not isinstance(ref.get(k), str) or not ref.get(k)]
         for k in missing:
-            problems.append(Problem(str(path), f"{key}.{k}", ref.get(k), "is required and must be a text"))
-        extra = sorted(set(ref) - {"file", "x", "y", "label", "point"})
-        for k in extra:
-            problems.append(Problem(str(path), f"{key}.{k}", ref[k], "unknown key (allowed: file, x, y, label, point)"))
-        if missing or extra:
+            problems.append(Problem(str(path), f"{key}.{k}", ref.get(k), "is required (or give a value) and must be a text"))
+        if missing or set(ref) - allowed:
             continue
         try:
             file = confined(root, ref["file"], what=f"{key}.file")
@@ -177,7 +199,5 @@ def _references(root: Path, path: Path, block: Any, problems: list[Problem]) -> 
         if not file.is_file():
             problems.append(Problem(str(path), f"{key}.file", ref["file"], "no such file in the study folder"))
             continue
-        point = ref.get("point")
-        out[str(name)] = Reference(str(name), file, ref["x"], ref["y"], str(ref.get("label") or ref["file"]),
-                                   None if point is None else str(point))
+        out[str(name)] = Reference(str(name), file, ref["x"], ref["y"], str(ref.get("label") or ref["file"]), point)
     return out

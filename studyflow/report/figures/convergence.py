@@ -8,6 +8,7 @@ import pandas as pd
 from matplotlib.figure import Figure
 
 from .. import style
+from ..settings import Reference
 from .common import figure_legend, fmt, label, levels_count, new_figure, size_axis
 
 
@@ -19,9 +20,9 @@ def _unc_row(unc: pd.DataFrame | None, point: str) -> pd.Series | None:
 
 
 def value_vs_size(results: pd.DataFrame, uncertainty: pd.DataFrame | None, quantity: str,
-                  unit: str | None, points: list[str]) -> Figure:
+                  unit: str | None, points: list[str], reference: Reference | None = None) -> Figure:
     """One panel per point: the value on each mesh level against mesh size, the extrapolated value at
-    h = 0, and the band value_fine +- U from the analysis table."""
+    h = 0, the band value_fine +- U from the analysis table, and a reference value when one is named."""
     done = results[(results["quantity"] == quantity) & (results["status"] == "done")]
     nlev = levels_count(results)
     fig, axes = new_figure(len(points), ncols=min(3, len(points)))
@@ -40,6 +41,8 @@ def value_vs_size(results: pd.DataFrame, uncertainty: pd.DataFrame | None, quant
         for xi, yi, lev in zip(x, y, rows["level"].astype(int)):
             ax.plot([xi], [yi], "o", color=style.level_colour(lev, nlev), zorder=3,
                     markeredgecolor=style.INK, markeredgewidth=0.5, label=f"level {lev}")
+        if reference is not None and reference.value is not None and reference.point in (None, str(point)):
+            ax.axhline(reference.value, color=style.GOOD, ls="-.", lw=1.2, zorder=1, label=reference.label)
         u = _unc_row(uncertainty, point)
         if u is not None:
             ext = float(u.get("extrapolated", np.nan))
