@@ -58,6 +58,10 @@ def profile_panels(results: pd.DataFrame, uncertainty: pd.DataFrame | None, quan
                 ext = u["extrapolated"].to_numpy(float)
                 if np.isfinite(ext).any():
                     ax.plot(c, ext, "--", color=style.ACCENT, lw=1.2, label="extrapolated")
+        values = rows["value"].to_numpy(float)
+        values = values[np.isfinite(values)]
+        if len(values) and values.min() > 0 and values.max() / values.min() > 30:
+            ax.set_yscale("log")  # a leading-edge spike would flatten the rest of the profile
         if reference is not None and len(reference) and reference_point in (None, str(point)):
             ax.plot(reference["x"], reference["y"], "s", color=style.GOOD, ms=3.5, mfc="none",
                     label=reference_label)
