@@ -54,13 +54,52 @@ def test_plate_study_ran(plate_bundle: Path, tmp_path: Path) -> None:
     assert fine["value"].iloc[0] == pytest.approx(blasius, rel=0.1)
 
 
-def test_plate_round_trip_reproduces_a_rerun_case(plate_bundle: Path, tmp_path: Path) -> None:
-    report = audit(plate_bundle, into=tmp_path / "review",
-                   rerun=RerunChoice("cases", cases=("tunnel--m0",)), engine="direct")
+def test_plate_round_trip_in_another_folder_is_clean(plate_bundle: Path, tmp_path: Path) -> None:
+    report = audit(plate_bundle, into=tmp_path / "review")
     assert report.ok, report.failures
-    checks = report.phases["rerun"].detail["checks"]
-    compared = {c["quantity"] for c in checks if c["compared"]}
-    assert {"drag", "cf", "cf_station", "mass_residual"} <= compared
-    assert [c["quantity"] for c in checks if not c["compared"]] == ["wall_time"]
+    assert report.phases["integrity"].detail["checked"] > 20
     assert report.phases["rerender"].detail["cases"] == 3
     assert report.phases["uncertainty"].ran and report.phases["uncertainty"].ok
+
+
+def _flip(path: Path, offset: int) -> None:
+    data = bytearray(path.read_bytes())
+    data[offset] ^= 0x01
+    path.write_bytes(bytes(data))
+
+
+@pytest.mark.parametrize("member", [
+    "payload/studies/plate-drag/cases/tunnel--m1/logs/solve.log",
+    "payload/studies/plate-drag/results/results.csv",
+    "payload/templates/plate/case.toml",
+])
+def test_plate_flipped_byte_is_named_and_fails(plate_bundle: Path, tmp_path: Path, member: str) -> None:
+    safe_extract(plate_bundle, tmp_path / "review")
+    root = tmp_path / "review" / "plate-drag-bundle"
+    _flip(root / member, offset=10)
+    report = audit(root)
+    assert not report.ok and f"altered: {member}" in report.failures
+
+
+def test_plate_sampled_rerun_with_a_new_solver_release(plate_bundle: Path, tmp_path: Path, monkeypatch) -> None:
+    # a "new release" of the solver: reports another version, computes the same numbers
+    real = shutil.which("studyflow-fv")
+    wrapper = tmp_path / "bin" / "studyflow-fv"
+    wrapper.parent.mkdir()
+    wrapper.write_text(f'#!/bin/sh\nif [ "$1" = "--version" ]; then echo "studyflow-fv 9.9.9"; exit 0; fi\n'
+                       f'exec "{real}" "$@"\n')
+    wrapper.chmod(0o755)
+    monkeypatch.setenv("PATH", f"{wrapper.parent}{os.pathsep}{os.environ['PATH']}")
+    # a seed whose one-case sample is the coarsest case keeps this test quick
+    cases = ["tunnel--m0", "tunnel--m1", "tunnel--m2"]
+    seed = next(s for s in range(100) if RerunChoice("sample", n=1, seed=s).pick(cases) == ["tunnel--m0"])
+    report = audit(plate_bundle, into=tmp_path / "review", rerun=RerunChoice("sample", n=1, seed=seed),
+                   engine="direct")
+    assert report.ok, report.failures
+    assert report.phases["rerun"].detail["cases"] == ["tunnel--m0"]
+    checks = report.phases["rerun"].detail["checks"]
+    assert {"drag", "cf", "cf_station", "mass_residual"} <= {c["quantity"] for c in checks if c["compared"]}
+    assert [c["quantity"] for c in checks if not c["compared"]] == ["wall_time"]
+    notes = [n for n in report.notes if n["what"] == "solver version"]
+    assert [(n["name"], n["now"]) for n in notes] == [("studyflow-fv", "9.9.9")]
+    assert notes[0]["packed"] != "9.9.9"
