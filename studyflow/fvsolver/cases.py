@@ -1,4 +1,5 @@
-"""The four case kinds: mesh, boundary conditions, viscosity, sources and starting field.
+"""The case kinds (plate, cavity, channel, mms, step): mesh, boundary conditions, viscosity,
+sources and starting field.
 
 Lengths are scaled by the reference length (plate length, cavity side, channel height, square
 side) and velocities by the reference speed (free stream, lid, mean inflow), so nu = 1/Re.
@@ -94,6 +95,27 @@ def build(cfg: CaseConfig) -> Problem:
         b = Boundaries(west=[Segment(0, 1, Inflow(1.0, 0.0))], east=[Segment(0, 1, Open(0.0))],
                        south=[Segment(0, length, Wall())], north=[Segment(0, length, Wall())])
         return Problem("channel", cfg, g, b, nu, 1.0, _uniform(1.0))
+    if cfg.kind == "step":
+        # backward-facing step, expansion ratio 2 (the layout of Gartling, Int. J. Numer. Meth.
+        # Fluids 11, 1990, shifted to y in [0, 1]): parabolic inflow of mean speed 1 over the upper
+        # half of the west side, the step face below it, walls at y = 0 and 1, open outlet
+        length = cfg.domain["length"]
+        g = Grid(clustered(0.0, length, cfg.nx, cfg.stretch_x, "low"), clustered(0.0, 1.0, cfg.ny, cfg.stretch_y, "both"))
+
+        def inlet(x, y):
+            s = np.clip(y - 0.5, 0.0, 0.5)
+            return 24.0 * s * (0.5 - s), 0.0 * s
+
+        b = Boundaries(west=[Segment(0.0, 0.5, Wall()), Segment(0.5, 1.0, Exact(inlet))],
+                       east=[Segment(0, 1, Open(0.0))],
+                       south=[Segment(0, length, Wall())], north=[Segment(0, length, Wall())])
+
+        def start(gr: Grid):
+            u = np.where(gr.yc[None, :] > 0.5, 1.0, 0.0) * np.ones((gr.nx + 1, 1))
+            u[1:] = 0.5  # the same mass flux, spread over the full height downstream
+            return u, np.zeros((gr.nx, gr.ny + 1)), np.zeros((gr.nx, gr.ny))
+
+        return Problem("step", cfg, g, b, nu, 1.0, start)
     if cfg.kind == "mms":
         g = Grid(clustered(0.0, 1.0, cfg.nx, cfg.stretch_x, "both"), clustered(0.0, 1.0, cfg.ny, cfg.stretch_y, "both"))
         e = [Segment(0, 1, Exact(manufactured.velocity))]
@@ -110,7 +132,7 @@ def coarser(cfg: CaseConfig) -> CaseConfig | None:
     nx, ny = cfg.nx // 2, cfg.ny // 2
     if cfg.kind in ("cavity", "mms") and (nx % 2 or ny % 2):
         return None
-    if cfg.kind == "channel" and ny % 2:
+    if cfg.kind in ("channel", "step") and ny % 2:
         return None
     return dataclasses.replace(cfg, nx=nx, ny=ny)
 

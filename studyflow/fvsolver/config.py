@@ -3,13 +3,14 @@
 Every problem found is reported together, each naming the file, the key and the bad value.
 Tables and keys (defaults in brackets):
 
-    [case]    kind = "plate" | "cavity" | "channel" | "mms";  reynolds (per kind, below)
+    [case]    kind = "plate" | "cavity" | "channel" | "mms" | "step";  reynolds (per kind, below)
     [domain]  plate: upstream [1.0], height [3.0], buffer [0.5] in plate lengths
-              channel: length [10.0] in channel heights
+              channel: length [10.0] in channel heights; step: length [15.0] in outlet heights
     [mesh]    nx, ny (cells); stretch_x, stretch_y: size ratio of the far-end to the near-end
               cell of each stretched segment (1 = uniform)
     [solve]   tolerance [1e-10], max_iterations [40], update_tolerance [0 = not used],
-              chord [true], coarse_levels [-1 = automatic], divergence_limit [1e6]
+              chord [true], coarse_levels [-1 = automatic], divergence_limit [1e6],
+              ramp [[]]: lower Reynolds numbers solved first on the coarsest mesh (continuation)
     [output]  fields ["fields.vtu"], metrics ["metrics.json"], history ["history.csv"]
     [plate]   stations [0.1 .. 1.0], profile_stations [[0.5]]
     [channel] profile_station [0.8], gradient_from [0.6], gradient_to [0.9]  (fractions of length)
@@ -25,11 +26,11 @@ from typing import Any
 
 from .errors import CaseFileError, Issue
 
-KINDS = ("plate", "cavity", "channel", "mms")
+KINDS = ("plate", "cavity", "channel", "mms", "step")
 
 # Per kind: default Reynolds number and mesh stretching (tuned once, documented in the templates).
-DEFAULT_RE = {"plate": 1.0e4, "cavity": 100.0, "channel": 50.0, "mms": 50.0}
-DEFAULT_STRETCH = {"plate": (300.0, 3000.0), "cavity": (1.0, 1.0), "channel": (4.0, 2.0), "mms": (1.0, 1.0)}
+DEFAULT_RE = {"plate": 1.0e4, "cavity": 100.0, "channel": 50.0, "mms": 50.0, "step": 100.0}
+DEFAULT_STRETCH = {"plate": (300.0, 3000.0), "cavity": (1.0, 1.0), "channel": (4.0, 2.0), "mms": (1.0, 1.0), "step": (4.0, 1.0)}
 
 
 @dataclass(frozen=True)
@@ -48,6 +49,7 @@ class CaseConfig:
     chord: bool = True
     coarse_levels: int = -1
     divergence_limit: float = 1e6
+    ramp: tuple[float, ...] = ()
     fields: str = "fields.vtu"
     metrics: str = "metrics.json"
     history: str = "history.csv"
@@ -108,6 +110,9 @@ class _Reader:
         elif check == "file":
             if not isinstance(v, str) or not v.strip() or Path(v).is_absolute() or ".." in Path(v).parts:
                 bad = "must be a relative file name inside the case folder"
+        elif check == "ramp":
+            if not isinstance(v, list) or not all(_is_num(s) and s > 0 for s in v) or v != sorted(v):
+                bad = "must be an increasing list of positive Reynolds numbers"
         elif check == "fractions":
             if (not isinstance(v, list) or not v or not all(_is_num(s) and lim["lo"] < s <= lim["hi"] for s in v)):
                 bad = f"must be a non-empty list of numbers in ({lim['lo']}, {lim['hi']}]"
@@ -166,6 +171,8 @@ def parse(data: dict, file: str = "<case>") -> CaseConfig:
         extra["profile_stations"] = r.get("plate", "profile_stations", [0.5], "fractions", lo=0.0, hi=1.0)
         if isinstance(nx, int) and nx < 16:
             r.issues.append(Issue(file, "mesh.nx", nx, "the plate needs at least 16 cells along x"))
+    elif kind == "step":
+        domain["length"] = r.get("domain", "length", 15.0, "pos", min=1.0, max=1000)
     elif kind == "channel":
         domain["length"] = r.get("domain", "length", 10.0, "pos", min=0.5, max=1000)
         extra["profile_station"] = r.get("channel", "profile_station", 0.8, "pos", max=1.0)
@@ -175,7 +182,7 @@ def parse(data: dict, file: str = "<case>") -> CaseConfig:
             r.issues.append(Issue(file, "channel.gradient_to", extra["gradient_to"],
                                   "must be larger than channel.gradient_from"))
     for name, n, s in (("nx", nx, sx), ("ny", ny, sy)):
-        two_sided = (kind in ("cavity", "mms") or (kind == "channel" and name == "ny"))
+        two_sided = (kind in ("cavity", "mms") or (kind in ("channel", "step") and name == "ny"))
         if two_sided and isinstance(n, int) and n % 2:
             r.issues.append(Issue(file, f"mesh.{name}", n, f"must be even for the {kind} case"
                                   " (centre lines lie on faces)"))
@@ -185,6 +192,9 @@ def parse(data: dict, file: str = "<case>") -> CaseConfig:
     chord = r.get("solve", "chord", True, "bool")
     coarse = r.get("solve", "coarse_levels", -1, "int", min=-1, max=8)
     div = r.get("solve", "divergence_limit", 1e6, "pos", min=1.0)
+    ramp = r.get("solve", "ramp", [], "ramp")
+    if isinstance(ramp, list) and isinstance(re_, float) and any(v >= re_ for v in ramp):
+        r.issues.append(Issue(file, "solve.ramp", ramp, f"every step must be below case.reynolds = {re_:g}"))
     fields_ = r.get("output", "fields", "fields.vtu", "file")
     metrics = r.get("output", "metrics", "metrics.json", "file")
     history = r.get("output", "history", "history.csv", "file")
@@ -192,4 +202,4 @@ def parse(data: dict, file: str = "<case>") -> CaseConfig:
     if r.issues:
         raise CaseFileError(r.issues)
     return CaseConfig(file, kind, re_, nx, ny, sx, sy, domain, tol, maxit, utol, chord, coarse, div,
-                      fields_, metrics, history, extra)
+                      tuple(float(v) for v in ramp), fields_, metrics, history, extra)

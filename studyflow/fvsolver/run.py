@@ -67,9 +67,17 @@ def solve(cfg: CaseConfig, log: Callable[[str], None] = print) -> Result:
         if not last:
             # a starting field needs no more than a few orders of convergence
             c = dataclasses.replace(c, tolerance=max(cfg.tolerance, 1e-6))
+        if k == 0:
+            for re_k in cfg.ramp:  # continuation in Reynolds number on the coarsest mesh
+                ck = dataclasses.replace(c, reynolds=re_k, tolerance=max(cfg.tolerance, 1e-6))
+                pk, ok = _solve_one(ck, start, log, f"[{c.nx}x{c.ny} Re {re_k:g}] ")
+                sequence.append({"nx": c.nx, "ny": c.ny, "reynolds": re_k, "iterations": ok.iterations,
+                                 "factorisations": ok.factorisations, "status": ok.status})
+                if ok.status in ("converged", "not_converged"):
+                    start = (pk.grid, Layout(pk.grid.nx, pk.grid.ny).split(ok.x))
         prob, out = _solve_one(c, start, log, label)
-        sequence.append({"nx": c.nx, "ny": c.ny, "iterations": out.iterations, "factorisations": out.factorisations,
-                         "status": out.status})
+        sequence.append({"nx": c.nx, "ny": c.ny, "reynolds": c.reynolds, "iterations": out.iterations,
+                         "factorisations": out.factorisations, "status": out.status})
         if out.status in ("diverged", "singular") and not last:
             log(f"{label}coarse start failed ({out.message}); starting the next mesh from the default field")
             start = None

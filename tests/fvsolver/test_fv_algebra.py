@@ -17,7 +17,8 @@ def _system(data):
 
 def test_jacobian_matches_central_difference_on_every_case_kind():
     rng = np.random.default_rng(3)
-    for kind, mesh in (("plate", (16, 8)), ("cavity", (8, 8)), ("channel", (12, 6)), ("mms", (8, 8))):
+    for kind, mesh in (("plate", (16, 8)), ("cavity", (8, 8)), ("channel", (12, 6)), ("mms", (8, 8)),
+                       ("step", (12, 8))):
         d = _system({"case": {"kind": kind}, "mesh": {"nx": mesh[0], "ny": mesh[1]}})
         x = rng.normal(size=d.layout.n)
         step = rng.normal(size=d.layout.n)

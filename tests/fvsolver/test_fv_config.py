@@ -38,6 +38,10 @@ def test_defaults_fill_in():
      [0.5, 1.5], "list of numbers"),
     ({"case": {"kind": "channel"}, "mesh": {"nx": 8, "ny": 8}, "channel": {"gradient_from": 0.9, "gradient_to": 0.5}},
      "channel.gradient_to", 0.5, "larger than"),
+    ({"case": {"kind": "step", "reynolds": 100.0}, "mesh": {"nx": 8, "ny": 8}, "solve": {"ramp": [50.0, 200.0]}},
+     "solve.ramp", [50.0, 200.0], "below case.reynolds"),
+    ({"case": {"kind": "step"}, "mesh": {"nx": 8, "ny": 8}, "solve": {"ramp": [60.0, 20.0]}}, "solve.ramp",
+     [60.0, 20.0], "increasing"),
 ])
 def test_bad_values_are_named(data, key, value, words):
     err = _issues(data)
