@@ -19,7 +19,7 @@ if TYPE_CHECKING:
     from .profile import ClusterRun
 
 
-def prepare(study: "Study", check: bool = True) -> "ClusterRun":
+def prepare(study: Study, check: bool = True) -> ClusterRun:
     """Check the scheduler (unless ``check`` is False) and write the study's profile.
 
     Returns the profile folder and the arguments and config entries the driver must add.

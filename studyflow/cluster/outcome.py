@@ -21,10 +21,10 @@ import re
 import shutil
 import socket
 import subprocess
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from pathlib import Path
-from typing import Iterable, Sequence
 
 from ..spec.model import Study
 from ..workflow import signature as sig
@@ -136,7 +136,7 @@ def state_from_log(path: Path) -> str | None:
         return None
     if "DUE TO TIME LIMIT" in tail:
         return "TIMEOUT"
-    if re.search(r"oom[-_ ]kill|Out Of Memory|OUT_OF_MEMORY", tail, re.I):
+    if re.search(r"oom[-_ ]kill|Out Of Memory|OUT_OF_MEMORY", tail, re.IGNORECASE):
         return "OUT_OF_MEMORY"
     if "DUE TO NODE FAILURE" in tail:
         return "NODE_FAIL"
@@ -221,7 +221,7 @@ def record_job_failures(study: Study, cases: Sequence[str], log_text: str, start
             key = job.job_id or str(id(job))
             if key not in reasons:  # one scheduler query per job, however many cases it held
                 reasons[key] = job_reason(job, study.root)
-            now = datetime.now(timezone.utc).isoformat(timespec="seconds")
+            now = datetime.now(UTC).isoformat(timespec="seconds")
             doc = dict(status or {})
             doc.update({"case": case, "step": step, "state": "failed", "reason": reasons[key],
                         "exit_code": (status or {}).get("exit_code"), "ended": now,

@@ -3,15 +3,15 @@
 from __future__ import annotations
 
 import dataclasses
+from collections.abc import Sequence
 from pathlib import Path
-from typing import Sequence
 
 from ..errors import Problem, StudySpecError, WorkflowError
 from ..spec.model import Study
 from ..workflow.driver import EngineOptions
 from .outcome import finish_cluster_run
-from .profile import ClusterRun, job_requests, write_profile
 from .preflight import check_requests, check_scheduler
+from .profile import ClusterRun, job_requests, write_profile
 from .settings import EXECUTORS, cluster_settings
 
 

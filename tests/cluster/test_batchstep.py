@@ -10,6 +10,7 @@ from __future__ import annotations
 import json
 
 from cluster_studies import make_study
+
 from studyflow import api
 from studyflow.cluster import batchstep
 from studyflow.cluster.outcome import clear_failure_markers

@@ -14,6 +14,7 @@ import time
 from pathlib import Path
 
 from cluster_studies import make_study
+
 from studyflow import api
 from studyflow.cluster import outcome
 

@@ -80,6 +80,7 @@ def test_unknown_partition_is_refused(monkeypatch):
 
 def test_cli_run_without_scheduler_renders_and_submits_nothing(monkeypatch, tmp_path, capsys):
     from cluster_studies import make_study
+
     from studyflow.cli import main
     from studyflow.errors import EXIT_WORKFLOW
 

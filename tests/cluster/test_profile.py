@@ -7,9 +7,9 @@ command-line options the plugin then reads, so the check is on what Snakemake wi
 from __future__ import annotations
 
 import yaml
+from cluster_studies import make_study
 from snakemake.profiles import ProfileConfigFileParser
 
-from cluster_studies import make_study
 from studyflow.cluster.profile import job_requests, runtime_min, write_profile
 from studyflow.cluster.settings import cluster_settings
 from studyflow.spec import load_study

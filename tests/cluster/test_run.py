@@ -18,8 +18,8 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
-
 from cluster_studies import make_cavity_study, make_study
+
 from studyflow import api
 from studyflow.cluster.outcome import submitted_jobs
 from studyflow.errors import WorkflowError
@@ -36,7 +36,7 @@ class _Timeout(Exception):
 def _run_bounded(study: Path, **kw):
     """api.run under a hard alarm: a hung scheduler fails the test instead of hanging CI."""
 
-    def on_alarm(signum, frame):  # noqa: ARG001
+    def on_alarm(signum, frame):
         raise _Timeout(f"cluster run of {study} took longer than {RUN_TIMEOUT_S} s")
 
     old = signal.signal(signal.SIGALRM, on_alarm)

@@ -3,8 +3,8 @@
 from __future__ import annotations
 
 import pytest
-
 from cluster_studies import make_study
+
 from studyflow.cluster.settings import cluster_settings
 from studyflow.errors import StudySpecError
 from studyflow.spec import load_study
