@@ -190,9 +190,12 @@ def clear_failure_markers(study: Study, cases: Iterable[str]) -> int:
     return n
 
 
+CLOCK_SKEW_S = 30.0  # compute nodes' clocks may lag the login node's a little
+
+
 def _own_result(status: dict | None, started_at: float) -> bool:
     """The step runner recorded this step in this run, with a result of its own."""
-    if not status or (status.get("started_at") or 0) < started_at - 1.0:
+    if not status or (status.get("started_at") or 0) < started_at - CLOCK_SKEW_S:
         return False
     if status.get("state") == "ok":
         return True
