@@ -16,9 +16,6 @@ from pydantic import BaseModel, ConfigDict, Field, PrivateAttr, field_validator
 
 from .quantities import QuantitySpec
 
-Scalar = Union[bool, int, float, str]
-
-
 def _check_scalar(value: Any) -> Any:
     if isinstance(value, float) and not math.isfinite(value):
         raise ValueError("must be a finite number")
@@ -76,6 +73,21 @@ class OneAtATimeBlock(_Strict):
     kind: Literal["one-at-a-time"]
     base: dict[str, Any] = Field(min_length=1)
     vary: dict[str, list[Any]] = Field(min_length=1)
+
+    @field_validator("base")
+    @classmethod
+    def _base(cls, v: dict[str, Any]) -> dict[str, Any]:
+        for item in v.values():
+            _check_scalar(item)
+        return v
+
+    @field_validator("vary")
+    @classmethod
+    def _vary(cls, v: dict[str, list[Any]]) -> dict[str, list[Any]]:
+        for items in v.values():
+            for item in items:
+                _check_scalar(item)
+        return v
 
 
 class Range(_Strict):

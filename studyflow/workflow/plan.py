@@ -75,8 +75,13 @@ class Plan:
 
 def _case_plan(cases_dir: str, rc: RenderedCase, shas: dict[int, str]) -> list[StepPlan]:
     case_dir = os.path.join(cases_dir, rc.case.id)
-    case_doc = json.loads(rc.case_json)
-    p_hash, m_hash = sig.params_hash(case_doc), sig.mesh_hash(case_doc)
+    # Parameter and mesh hashes only name the reason of a stale step: computed when needed.
+    case_doc: dict = {}
+
+    def doc_hashes() -> tuple[str, str]:
+        if not case_doc:
+            case_doc.update(json.loads(rc.case_json))
+        return sig.params_hash(case_doc), sig.mesh_hash(case_doc)
     out: list[StepPlan] = []
     prev_sig: str | None = None
     prev_run = False  # the step before will run (so this one must too)
@@ -144,9 +149,9 @@ def _case_plan(cases_dir: str, rc: RenderedCase, shas: dict[int, str]) -> list[S
             reason = "upstream step rerun"
         elif missing_input is not None:
             reason = f"input missing ({missing_input})"
-        elif marker.get("params") != p_hash:
+        elif marker.get("params") != doc_hashes()[0]:
             reason = "parameter changed"
-        elif marker.get("mesh") != m_hash:
+        elif marker.get("mesh") != doc_hashes()[1]:
             reason = "mesh changed"
         elif marker.get("command") != command:
             reason = "step command changed"
