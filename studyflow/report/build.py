@@ -226,25 +226,36 @@ class _Builder:
                 return files[-1], files
         return None, []
 
-    def fields(self, table: pd.DataFrame) -> tuple[str, list[FigureFile], list[str]]:
+    def start_fields(self, table: pd.DataFrame) -> dict[str, Any]:
+        """Choose the case, read its fields and start the off-screen renderer (it runs meanwhile)."""
         finest, family = self.field_case(table)
         if finest is None:
-            return "", [], ["No finished case has a field or mesh file (VTU, VTK, XDMF, gmsh MSH) to draw."]
+            return {"case": "", "notes": ["No finished case has a field or mesh file (VTU, VTK, XDMF, gmsh MSH) "
+                                          "to draw."]}
         state, path = finest
-        notes: list[str] = []
+        work: dict[str, Any] = {"case": state.case, "state": state, "path": path, "family": family, "notes": []}
         try:
-            mesh = fieldpics.read_mesh(path)
+            work["mesh"] = fieldpics.read_mesh(path)
         except Exception as exc:  # meshio raises many reader-specific types
-            return state.case, [], [f"The field file {path.name} of {state.case} could not be read: {exc}"]
-        arrays = fieldpics.choose_arrays(mesh)
+            work["notes"].append(f"The field file {path.name} of {state.case} could not be read: {exc}")
+            return work
+        arrays = fieldpics.choose_arrays(work["mesh"])
         if not arrays:
-            notes.append(f"{path.name} of {state.case} holds a mesh but no field arrays: no field pictures.")
-        jobs = [fieldpics.PictureJob(path, name, assoc, self.figdir / f"field-{slug(name)}.png",
-                                     name) for name, assoc in arrays]
+            work["notes"].append(f"{path.name} of {state.case} holds a mesh but no field arrays: no field pictures.")
+        work["jobs"] = [fieldpics.PictureJob(path, name, assoc, self.figdir / f"field-{slug(name)}.png", name)
+                        for name, assoc in arrays]
         self.figdir.mkdir(parents=True, exist_ok=True)
-        status = fieldpics.render_pictures(jobs, argv=self.renderer_argv)
-        out = []
-        for job in jobs:
+        if work["jobs"]:
+            work["pending"] = fieldpics.start_pictures(work["jobs"], argv=self.renderer_argv)
+        return work
+
+    def finish_fields(self, work: dict[str, Any]) -> tuple[str, list[FigureFile], list[str]]:
+        notes: list[str] = work["notes"]
+        if "state" not in work:
+            return work["case"], [], notes
+        state, path, out = work["state"], work["path"], []
+        status = work["pending"].result() if "pending" in work else {}
+        for job in work.get("jobs", []):
             title = f"{job.array} on {state.case}"
             caption = f"{job.association} data '{job.array}' from {path.name}."
             name = job.png.stem
@@ -259,12 +270,12 @@ class _Builder:
                 why = status.get(job.png, "not attempted")
                 note = f"The pyvista picture could not be drawn ({why}); shown with matplotlib instead."
                 try:
-                    fig = fieldpics.fallback_picture(mesh, job.array, job.association, title)
+                    fig = fieldpics.fallback_picture(work["mesh"], job.array, job.association, title)
                     out.append(self.save(fig, name, title, caption, "fields", note))
                 except Exception as exc:  # a field we cannot draw must not cost the report
                     notes.append(f"{title}: could not be drawn ({why}); the fallback failed too: {exc}")
         meshes = []
-        for s, f in family:
+        for s, f in work["family"]:
             try:
                 meshes.append((f"level {s.level}", fieldpics.read_mesh(f)))
             except Exception as exc:  # meshio raises many reader-specific types
@@ -272,7 +283,8 @@ class _Builder:
         if meshes:
             fig = fieldpics.mesh_family(meshes)
             out.append(self.save(fig, "meshes", f"Mesh family of point {state.point}",
-                                 "The meshes of one point, coarse to fine.", "fields"))
+                                 "The meshes of one point, coarse to fine: whole (top) and the same detail "
+                                 "window of each (bottom, marked in orange above).", "fields"))
         return state.case, out, notes
 
 
@@ -299,14 +311,19 @@ def build_report(study: str | os.PathLike | Any, out: str | os.PathLike | None =
     total = len(ctable)
     notices = _notices(data, counts, total)
 
-    quantities = b.quantity_sections()
-    sweep_figs = b.sweeps()
-    cases_sorted = ctable["case"].astype(str).tolist()
-    hist_figs = b.histories(cases_sorted, dict(zip(cases_sorted, ctable["status"].astype(str))))
-    if fields:
-        fields_case, field_figs, field_notes = b.fields(ctable)
-    else:
-        fields_case, field_figs, field_notes = "", [], ["Field pictures were not requested for this build."]
+    # the field renderer (a child process) works while the matplotlib figures are drawn here
+    work = b.start_fields(ctable) if fields else {"case": "", "notes": ["Field pictures were not requested for "
+                                                                        "this build."]}
+    try:
+        quantities = b.quantity_sections()
+        sweep_figs = b.sweeps()
+        cases_sorted = ctable["case"].astype(str).tolist()
+        hist_figs = b.histories(cases_sorted, dict(zip(cases_sorted, ctable["status"].astype(str))))
+    except BaseException:
+        if "pending" in work:
+            work["pending"].cancel()  # a bad reference file or Ctrl-C: leave no renderer behind
+        raise
+    fields_case, field_figs, field_notes = b.finish_fields(work)
 
     tables: list[TableFile] = []
     summary = uncertainty_summary(data)

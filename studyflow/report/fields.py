@@ -12,6 +12,7 @@ import os
 import subprocess
 import sys
 import tempfile
+import time
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -90,15 +91,16 @@ def choose_arrays(mesh) -> list[tuple[str, str]]:
     return out[:MAX_ARRAYS]
 
 
-def render_pictures(jobs: list[PictureJob], argv: list[str] | None = None, timeout: float = 240.0) -> dict[Path, str]:
-    """Run the child renderer on ``jobs``; returns png -> "ok" or the reason it was not drawn.
+class PendingPictures:
+    """The child renderer at work: started by ``start_pictures``, answered by ``result()``.
 
-    ``argv`` replaces the child command (tests use it to simulate a crashing renderer).
+    Started before the matplotlib figures are drawn, so the two use both cores of a small machine.
     """
-    if not jobs:
-        return {}
-    with tempfile.TemporaryDirectory(prefix="studyflow-render-") as tmp:
-        job_file = Path(tmp) / "job.json"
+
+    def __init__(self, jobs: list[PictureJob], argv: list[str] | None, timeout: float):
+        self.jobs, self.timeout, self.proc, self.failure = jobs, timeout, None, ""
+        self.tmp = tempfile.TemporaryDirectory(prefix="studyflow-render-")
+        job_file = Path(self.tmp.name) / "job.json"
         job_file.write_text(json.dumps({
             "size": [900, 520],
             "items": [{"file": str(j.file), "array": j.array, "association": j.association,
@@ -107,30 +109,73 @@ def render_pictures(jobs: list[PictureJob], argv: list[str] | None = None, timeo
         command = (argv or [sys.executable, str(Path(__file__).with_name("fieldrender.py"))]) + [str(job_file)]
         env = dict(os.environ)
         env.setdefault("VTK_DEFAULT_OPENGL_WINDOW", "vtkEGLRenderWindow")
+        self.out = Path(self.tmp.name) / "stdout"
+        self.err = Path(self.tmp.name) / "stderr"
         try:
-            proc = subprocess.run(command, capture_output=True, text=True, timeout=timeout, env=env, check=False)
-        except subprocess.TimeoutExpired:
-            return {j.png: f"the off-screen renderer did not finish within {timeout:.0f} s" for j in jobs}
+            with self.out.open("wb") as out, self.err.open("wb") as err:
+                self.proc = subprocess.Popen(command, stdout=out, stderr=err, stdin=subprocess.DEVNULL, env=env)
         except OSError as exc:
-            return {j.png: f"the off-screen renderer could not start: {exc}" for j in jobs}
-    if proc.returncode != 0:
-        tail = (proc.stderr or "").strip().splitlines()[-1:] or [""]
-        why = f"the off-screen renderer stopped with exit code {proc.returncode}"
-        if proc.returncode < 0:
-            why = f"the off-screen renderer crashed (signal {-proc.returncode})"
-        why += f": {tail[0]}" if tail[0] else ""
-        return {j.png: why for j in jobs}
-    try:
-        reported = json.loads(proc.stdout.strip().splitlines()[-1])
-    except (ValueError, IndexError):
-        return {j.png: "the off-screen renderer gave no readable answer" for j in jobs}
-    out = {}
-    for j in jobs:
-        status = reported.get(str(j.png), "the off-screen renderer skipped this picture")
-        if status == "ok" and not (j.png.is_file() and j.png.stat().st_size > 0):
-            status = "the off-screen renderer reported success but wrote no picture"
-        out[j.png] = status
-    return out
+            self.failure = f"the off-screen renderer could not start: {exc}"
+        self.started = time.monotonic()
+
+    def cancel(self) -> None:
+        if self.proc is not None and self.proc.poll() is None:
+            self.proc.kill()
+            self.proc.wait()
+        self.tmp.cleanup()
+
+    def result(self) -> dict[Path, str]:
+        try:
+            return self._result()
+        finally:
+            self.tmp.cleanup()
+
+    def _result(self) -> dict[Path, str]:
+        jobs = self.jobs
+        if self.proc is None:
+            return {j.png: self.failure for j in jobs}
+        try:
+            self.proc.wait(max(1.0, self.timeout - (time.monotonic() - self.started)))
+        except subprocess.TimeoutExpired:
+            self.proc.kill()
+            self.proc.wait()
+            return {j.png: f"the off-screen renderer did not finish within {self.timeout:.0f} s" for j in jobs}
+        stdout = self.out.read_text(encoding="utf-8", errors="replace")
+        stderr = self.err.read_text(encoding="utf-8", errors="replace")
+        code = self.proc.returncode
+        if code != 0:
+            tail = stderr.strip().splitlines()[-1:] or [""]
+            why = f"the off-screen renderer stopped with exit code {code}"
+            if code < 0:
+                why = f"the off-screen renderer crashed (signal {-code})"
+            why += f": {tail[0]}" if tail[0] else ""
+            return {j.png: why for j in jobs}
+        try:
+            reported = json.loads(stdout.strip().splitlines()[-1])
+        except (ValueError, IndexError):
+            return {j.png: "the off-screen renderer gave no readable answer" for j in jobs}
+        out = {}
+        for j in jobs:
+            status = reported.get(str(j.png), "the off-screen renderer skipped this picture")
+            if status == "ok" and not (j.png.is_file() and j.png.stat().st_size > 0):
+                status = "the off-screen renderer reported success but wrote no picture"
+            out[j.png] = status
+        return out
+
+
+def start_pictures(jobs: list[PictureJob], argv: list[str] | None = None, timeout: float = 240.0) -> PendingPictures:
+    """Start the child renderer on ``jobs`` and return at once; ``.result()`` waits for it.
+
+    ``argv`` replaces the child command (tests use it to simulate a crashing renderer).
+    """
+    return PendingPictures(jobs, argv, timeout)
+
+
+def render_pictures(jobs: list[PictureJob], argv: list[str] | None = None, timeout: float = 240.0) -> dict[Path, str]:
+    """Run the child renderer on ``jobs``; returns png -> "ok" or the reason it was not drawn."""
+    if not jobs:
+        return {}
+    return start_pictures(jobs, argv, timeout).result()
 
 
 def _surface(mesh) -> tuple[np.ndarray, list[np.ndarray], list[tuple[str, int, int]]]:

@@ -22,7 +22,7 @@ def _first(frame: pd.DataFrame, names: tuple[str, ...]) -> pd.Series | None:
 def residual_summary(histories: pd.DataFrame | None, residuals: list[str]) -> pd.DataFrame:
     """Per case: iterations run, the drop of the worst residual in decades, the largest final residual.
 
-    The per-residual drop log10(r_first / r_final) is the analysis layer's (``analysis.residual_summary``);
+    The per-residual drop log10(r_peak / r_final) is the analysis layer's (``analysis.residual_summary``);
     the case keeps the smallest drop over its residuals (common practice: a case is as converged as its
     worst-converged equation).
     """
