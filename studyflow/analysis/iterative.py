@@ -26,20 +26,21 @@ def _ordered(histories: pd.DataFrame, quantities: list[str] | None) -> pd.DataFr
 def residual_summary(histories: pd.DataFrame, residuals: list[str]) -> pd.DataFrame:
     """Per case and residual: first and final value, orders of magnitude of drop, final normalised residual.
 
-    drop = log10(r_first / r_final); normalised final residual = r_final / r_first, i.e. the
-    residual normalised by its first recorded value (our documented choice: solvers differ in
-    how they normalise, and the first value is the one every history has). Columns: ``case,
-    point, level, quantity, iterations, first, final, drop_orders, final_normalised``.
+    drop = log10(r_peak / r_final) and normalised final residual = r_final / r_peak, where
+    r_peak is the largest recorded value (our documented choice: solvers differ in how they
+    normalise, and the first value can be zero, e.g. a continuity imbalance of a uniform start
+    field, while the peak is always a meaningful reference). Columns: ``case, point, level,
+    quantity, iterations, first, peak, final, drop_orders, final_normalised``.
     """
     h = _ordered(histories, residuals)
     if h.empty:
-        return pd.DataFrame(columns=["case", "point", "level", "quantity", "iterations", "first", "final",
+        return pd.DataFrame(columns=["case", "point", "level", "quantity", "iterations", "first", "peak", "final",
                                      "drop_orders", "final_normalised"])
     g = h.assign(absval=h["value"].abs()).groupby(_KEYS, sort=True)
     out = g.agg(point=("point", "first"), level=("level", "first"), iterations=("iteration", "max"),
-                first=("absval", "first"), final=("absval", "last")).reset_index()
+                first=("absval", "first"), peak=("absval", "max"), final=("absval", "last")).reset_index()
     with np.errstate(divide="ignore", invalid="ignore"):
-        ratio = out["final"].to_numpy(float) / out["first"].to_numpy(float)
+        ratio = out["final"].to_numpy(float) / out["peak"].to_numpy(float)
         out["drop_orders"] = -np.log10(ratio)
     out["final_normalised"] = ratio
     return out

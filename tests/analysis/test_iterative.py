@@ -26,6 +26,16 @@ def test_residual_drop_in_orders_of_magnitude():
     assert out.loc["b--m0", "drop_orders"] == pytest.approx(0.0, abs=1e-15)
 
 
+def test_drop_is_measured_from_the_peak_when_the_first_value_is_zero():
+    # A uniform start field satisfies continuity exactly, so a mass imbalance can start at 0,
+    # rise to 1e-2 and fall to 1e-11: 9 orders from the peak (arithmetic), not an infinite rise.
+    h = _hist("a--m0", "mass", np.array([0.0, 1e-2, 1e-5, 1e-11]))
+    out = residual_summary(h, ["mass"])
+    assert out["peak"].iat[0] == 1e-2
+    assert out["drop_orders"].iat[0] == pytest.approx(9.0, rel=1e-12)
+    assert np.isfinite(out["final_normalised"].iat[0])
+
+
 def test_iteration_order_not_row_order():
     h = _hist("a--m0", "res", 10.0 ** (-np.arange(11.0))).iloc[::-1]  # rows reversed
     out = residual_summary(h, ["res"])
