@@ -39,3 +39,13 @@ def test_driver_options_and_batch_hook(tmp_path: Path) -> None:
     assert argv[3] == "cases/p00--m0/.studyflow/solve.done"  # explicit targets, before any option
     assert group_for(study, study.steps[0]) == "sf_batch"
     assert group_components(study) == ["--group-components", "sf_batch=20"]
+
+
+def test_retries_rerun_a_failed_step(tmp_path: Path) -> None:
+    root = table_study(tmp_path / "s", points=1, levels=1, extra="retries: 1\n")
+    step = root / "tpl" / "step.sh"
+    # Fails on its first attempt only (leaves a flag behind), as a flaky licence server might.
+    step.write_text('[ -f tried ] || { touch tried; echo attempt >> ../../runs.log; exit 1; }\n' + step.read_text())
+    out = api.run(root, cores=1, progress=False)
+    assert out.exit_code == 0
+    assert executions(root) == ["attempt", "p00--m0"]
