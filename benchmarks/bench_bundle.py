@@ -2,7 +2,7 @@
 
     python benchmarks/bench_bundle.py [--points 100] [--levels 3]
 
-Case outputs are written directly (the toy formula of tests/bundle/conftest.py), so the
+Case outputs are written directly (the toy formula of tests/bundle/bundle_support.py), so the
 timings are those of the bundle itself: hashing, archiving, safe unpacking, re-rendering,
 comparing, re-computing the uncertainty table, plus a re-run of a 5-case sample.
 """
@@ -20,7 +20,7 @@ from pathlib import Path
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent / "tests" / "bundle"))
 
-from conftest import STUDY, make_toy  # noqa: E402
+from bundle_support import STUDY, make_toy  # noqa: E402
 
 
 def fabricate(case_dir: Path, n: int, k: float) -> None:

@@ -1,4 +1,4 @@
-"""Audit of a bundle: integrity, re-render and verdict, on the invented toy study (conftest).
+"""Audit of a bundle: integrity, re-render and verdict, on the invented toy study (bundle_support).
 
 The outside reference for "identical" and "altered" is SHA-256 from ``hashlib`` and plain byte
 comparison; exit codes are the documented ones in ``studyflow.errors``.

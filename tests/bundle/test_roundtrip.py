@@ -1,6 +1,6 @@
 """Round trip on a run study: pack, audit elsewhere, tamper, re-run with the same or a new solver.
 
-The toy study (conftest) is an invented demo; its solver's answer phi = k (1 + h^2 / 2) is
+The toy study (bundle_support) is an invented demo; its solver's answer phi = k (1 + h^2 / 2) is
 analytic, so "reproduced" means the re-run printed the same 17 significant digits. Integrity is
 judged with SHA-256 (``hashlib``); tolerances follow ``numpy.isclose`` (checked below against
 numpy itself).
@@ -13,7 +13,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
-from conftest import use_solver
+from bundle_support import use_solver
 
 from studyflow.bundle import RerunChoice, audit, safe_extract
 from studyflow.bundle.text import audit_text
