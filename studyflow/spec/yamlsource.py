@@ -78,7 +78,17 @@ class YamlSource:
         return Problem(self.where(path), key_path(path), value, message)
 
 
+# Aliases of aliases expand exponentially ("a billion laughs"); no real study has this many values.
+MAX_NODES = 1_000_000
+
+
+class _TooLarge(Exception):
+    pass
+
+
 def _walk(node: yaml.Node, path: KeyPath, src: YamlSource) -> None:
+    if len(src.lines) > MAX_NODES:
+        raise _TooLarge()
     src.lines.setdefault(path, node.start_mark.line + 1)
     if isinstance(node, yaml.MappingNode):
         seen: dict[Any, int] = {}
@@ -105,7 +115,10 @@ def read_yaml(path: Path, shown: str | None = None) -> YamlSource:
         text = path.read_text(encoding="utf-8")
     except UnicodeDecodeError as exc:
         return YamlSource(shown, None, problems=[Problem(shown, "", exc.reason, "is not UTF-8 text")])
-    loader = StudyLoader(text)
+    try:
+        loader = StudyLoader(text)
+    except yaml.YAMLError as exc:  # the reader refuses control characters before any parsing
+        return YamlSource(shown, None, problems=[Problem(shown, "", None, f"YAML error: {exc}")])
     try:
         node = loader.get_single_node()
         src = YamlSource(shown, None)
@@ -122,5 +135,11 @@ def read_yaml(path: Path, shown: str | None = None) -> YamlSource:
         return YamlSource(shown, None, problems=[Problem(where, "", snippet, f"YAML syntax error{col}: {what}")])
     except yaml.YAMLError as exc:
         return YamlSource(shown, None, problems=[Problem(shown, "", None, f"YAML error: {exc}")])
+    except _TooLarge:
+        return YamlSource(shown, None, problems=[Problem(shown, "", MAX_NODES, "YAML error: the document expands "
+                                                         "to more values than allowed (aliases of aliases?)")])
+    except RecursionError:  # an alias that contains itself (&a [*a]) or absurdly deep nesting
+        return YamlSource(shown, None, problems=[Problem(shown, "", None, "YAML error: the document nests too "
+                                                         "deeply or an anchor refers to itself")])
     finally:
         loader.dispose()
