@@ -136,3 +136,19 @@ def test_sweep_with_a_reference_curve(data):
     fig = quantity_vs_parameter(data.results, _unc(data, "dp"), "dp", "Pa", "Re", ["angle"], ref, "tunnel data")
     line = [ln for ln in fig.axes[0].lines if ln.get_label() == "tunnel data"][0]
     assert list(line.get_xdata()) == [1.0e4, 5.0e4, 1.0e5] and list(line.get_ydata()) == [12.5, 5.5, 3.9]
+
+
+def test_space_filling_design_is_drawn_as_a_scatter():
+    """Every point varies both parameters (as a Latin hypercube does): no curve holds the other fixed."""
+    rng = np.random.default_rng(3)
+    rows = []
+    for i, (re, ang) in enumerate(zip(rng.uniform(1e4, 1e5, 8), rng.uniform(0, 4, 8))):
+        for level in range(3):
+            rows.append({"point": f"s{i}", "case": f"s{i}--m{level}", "level": level, "Re": re, "angle": ang,
+                         "quantity": "dp", "kind": "scalar", "status": "done", "value": 1.0 + level, "h": 0.1})
+    results = pd.DataFrame(rows)
+    fig = quantity_vs_parameter(results, None, "dp", "Pa", "Re", ["angle"])
+    (ax,) = fig.axes
+    assert ax.get_title(loc="left") == "all points"
+    for line in ax.lines:
+        assert line.get_linestyle() == "None" and len(line.get_xdata()) == 8
