@@ -140,3 +140,17 @@ def test_time_limit_override_is_a_note_not_a_failure(toy, tmp_path: Path) -> Non
     report = audit(pack(toy.study_dir, tmp_path / "t.tar.gz").archive, into=tmp_path / "r")
     assert report.ok, report.failures
     assert [n["what"] for n in report.notes if n["what"] == "time limit override"] == ["time limit override"]
+
+
+def test_template_inside_the_study_folder(toy, tmp_path: Path) -> None:
+    import shutil
+
+    shutil.move(str(toy.template_dir), str(toy.study_dir / "tpl"))
+    toy.study_file.write_text(toy.study_file.read_text().replace("template: ../../templates/toy", "template: tpl"))
+    archive = _rendered_bundle(toy, tmp_path)
+    report = audit(archive, into=tmp_path / "r")
+    manifest = json.loads((tmp_path / "r/toy-bundle/MANIFEST.json").read_text())
+    assert manifest["template"]["stored"] == "payload/toy/tpl" and manifest["template"]["inside_study"]
+    roles = {f["path"]: f["role"] for f in manifest["files"]}
+    assert roles["payload/toy/tpl/case.txt"] == "template"
+    assert report.ok, report.failures
