@@ -161,6 +161,30 @@ def _run_history(layout: StudyLayout) -> tuple[list[Any], dict[str, str]]:
     return commands, dates
 
 
+def _outside_files(layout: StudyLayout, limit: int = 10) -> list[str]:
+    """Files named in the steps' arguments (relative or absolute paths that exist) that lie
+    outside the study folder and its template folder, so a bundle cannot carry them."""
+    keep = [layout.study_dir] + ([layout.template_dir] if layout.template_dir is not None else [])
+    found: set[str] = set()
+    for rec in sorted(layout.study_dir.glob("cases/*/.studyflow/*.step.json")):
+        try:
+            argv = json.loads(rec.read_text(encoding="utf-8")).get("argv") or []
+        except (OSError, ValueError, AttributeError):
+            continue
+        case_dir = rec.parent.parent
+        for i, tok in enumerate(argv):
+            if not isinstance(tok, str) or "/" not in tok or tok.startswith("-"):
+                continue
+            p = (case_dir / tok).resolve() if not os.path.isabs(tok) else Path(tok)
+            if i == 0 and os.path.isabs(tok):
+                continue  # an installed program: its version is recorded, not its bytes
+            if p.exists() and not any(p == k or k in p.parents for k in keep):
+                found.add(str(p))
+        if len(found) >= limit:
+            break
+    return sorted(found)[:limit]
+
+
 def _epoch(created: str) -> int:
     return calendar.timegm(time.strptime(created, "%Y-%m-%dT%H:%M:%SZ"))
 
@@ -303,5 +327,8 @@ def _pack_locked(layout: StudyLayout, archive: str | os.PathLike | None, fields:
                         "collect the study before packing")
     if "uncertainty" not in roles:
         warnings.append("no uncertainty table in the study: assess it before packing")
+    for path in _outside_files(layout):
+        warnings.append(f"a step uses {path}, which lies outside the study and its templates and is not "
+                        "in the bundle: a reviewer needs it to re-run")
     return PackResult(out, sha256_bytes(manifest_bytes), len(entries), total, skipped,
                       environment["solvers"], warnings)

@@ -103,3 +103,15 @@ def test_audit_block_naming_an_unknown_quantity_is_refused(toy, tmp_path: Path) 
     toy.study_file.write_text(text)
     with pytest.raises(InputError, match=r"audit\.ignore\[0\].*no quantity 'wall_tme'"):
         pack(toy.study_dir, tmp_path / "b.tar.gz")
+
+
+def test_pack_warns_about_step_files_outside_the_bundle(toy, tmp_path: Path) -> None:
+    helper = toy.base / "tools" / "extra.awk"
+    helper.parent.mkdir()
+    helper.write_text("BEGIN { }\n")
+    text = toy.study_file.read_text().replace('run: "toysolve case.txt"',
+                                              'run: "toysolve case.txt ../../../../tools/extra.awk"')
+    toy.study_file.write_text(text)
+    _render(toy)
+    result = pack(toy.study_dir, tmp_path / "b.tar.gz")
+    assert any(str(helper) in w and "outside the study" in w for w in result.warnings)
