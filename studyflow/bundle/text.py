@@ -86,8 +86,9 @@ def audit_text(report: AuditReport, limit: int = 40) -> str:
             checks = d.get("checks", [])
             bad = sum(1 for c in checks if not c["ok"])
             skipped = sum(1 for c in checks if not c.get("compared", True))
-            out.append(f"re-run: {len(d.get('cases', []))} cases ({d.get('how')}): {len(checks) - skipped} "
-                       f"quantities compared, {bad} outside tolerance"
+            n_cases = len(d.get("cases", []))
+            out.append(f"re-run: {n_cases} case{'s' if n_cases != 1 else ''} ({d.get('how')}): "
+                       f"{len(checks) - skipped} quantity checks, {bad} outside tolerance"
                        + (f", {skipped} not compared (audit.ignore)" if skipped else ""))
             for c in checks[:limit]:
                 if not c.get("compared", True):
