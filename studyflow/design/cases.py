@@ -79,4 +79,5 @@ def build_design(study: Study) -> Design:
         for n in p.params:
             names.setdefault(n, None)
     cases = tuple(Case(case_id(p.id, m.level), p, m) for p in points for m in levels)
-    return Design(points, levels, cases, tuple(names), mesh_dim(study.mesh))
+    return Design(cases=cases, points=points, levels=levels, parameter_names=tuple(names),
+                  dim=mesh_dim(study.mesh))
