@@ -116,9 +116,11 @@ def probe_solver(command: str, cwd: str | None = None, timeout: float = 5.0) -> 
     return SolverVersion(command, resolved, line, match.group(0) if match else None, None)
 
 
-def capture(solver_commands: list[str], command_lines: list[Any] | None = None,
+def capture(solver_commands: list[str] | dict[str, str | None], command_lines: list[Any] | None = None,
             run_dates: dict[str, str] | None = None) -> dict[str, Any]:
-    """The environment record stored as ``environment.json`` in a bundle."""
+    """The environment record stored as ``environment.json`` in a bundle. ``solver_commands``:
+    the programs the steps start, or a mapping of each to the case folder it runs in."""
+    where = dict(solver_commands) if isinstance(solver_commands, dict) else dict.fromkeys(solver_commands)
     pkgs = packages()
     return {
         "studyflow_version": studyflow.__version__,
@@ -137,7 +139,8 @@ def capture(solver_commands: list[str], command_lines: list[Any] | None = None,
         },
         "key_packages": {k: pkgs.get(k) for k in KEY_PACKAGES},
         "packages": pkgs,
-        "solvers": {c: probe_solver(c).to_json() for c in sorted(set(solver_commands))},
+        # a command given as a relative path is found from the case folder it runs in
+        "solvers": {c: probe_solver(c, cwd=where.get(c)).to_json() for c in sorted(where)},
         "command_lines": command_lines or [],
         "run_dates": run_dates or {},
     }

@@ -62,19 +62,19 @@ def _hash_file(path: Path) -> tuple[str, int]:
     return h.hexdigest(), size
 
 
-def _solver_commands(layout: StudyLayout) -> list[str]:
-    """The program each step starts: from the rendered step records when there are any, else
-    from the study file's ``run`` with constants filled in."""
-    found: set[str] = set()
+def _solver_commands(layout: StudyLayout) -> dict[str, str | None]:
+    """The program each step starts, with a case folder it runs in: from the rendered step
+    records when there are any, else from the study file's ``run`` with constants filled in."""
+    found: dict[str, str | None] = {}
     for rec in sorted(layout.study_dir.glob("cases/*/.studyflow/*.step.json")):
         try:
             argv = json.loads(rec.read_text(encoding="utf-8")).get("argv")
         except (OSError, ValueError, AttributeError):
             continue
         if isinstance(argv, list) and argv and isinstance(argv[0], str):
-            found.add(argv[0])
+            found.setdefault(argv[0], str(rec.parent.parent))
     if found:
-        return sorted(found)
+        return found
     constants = layout.raw.get("constants") or {}
     for step in layout.raw.get("steps") or []:
         run = step.get("run") if isinstance(step, dict) else None
@@ -90,8 +90,8 @@ def _solver_commands(layout: StudyLayout) -> list[str]:
                 first = env_.from_string(first).render(**constants)
             except jinja2.TemplateError:  # a name only a case defines: leave the command unprobed
                 continue
-        found.add(first)
-    return sorted(found)
+        found.setdefault(first, None)
+    return found
 
 
 def _run_history(layout: StudyLayout) -> tuple[list[Any], dict[str, str]]:
