@@ -138,10 +138,10 @@ def coarser(cfg: CaseConfig) -> CaseConfig | None:
 
 
 def auto_levels(cfg: CaseConfig) -> int:
-    """Coarser meshes to solve first: halve while the coarser mesh keeps at least 1024 cells."""
+    """Coarser meshes to solve first: halve while the coarser mesh keeps at least 512 cells."""
     levels, c = 0, cfg
     while True:
         nxt = coarser(c)
-        if nxt is None or nxt.nx * nxt.ny < 1024:
+        if nxt is None or nxt.nx * nxt.ny < 512:
             return levels
         levels, c = levels + 1, nxt
