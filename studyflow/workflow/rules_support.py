@@ -23,6 +23,8 @@ if TYPE_CHECKING:
 STATE = ".studyflow"
 
 RULE_PREFIX = "sf_"
+DEFAULT_RUNNER = "studyflow.workflow.runstep"
+RUNSTEP_FILE = Path(__file__).resolve().with_name("runstep.py")
 BATCH_GROUP = "sf_batch"
 
 
@@ -103,7 +105,7 @@ class RuleSet:
     retries: int
     all_targets: list[str] = field(default_factory=list)
     # The module each job runs; cluster batches use studyflow.cluster.batchstep (config step_runner).
-    runner: str = "studyflow.workflow.runstep"
+    runner: str = "studyflow.workflow.runstep"  # DEFAULT_RUNNER
 
     def rule_name(self, step: RuleStep) -> str:
         return rule_name(step.name)
@@ -138,9 +140,15 @@ class RuleSet:
         ``{params.step}``; case ids are filesystem-safe ([A-Za-z0-9._-]) and step names are
         identifiers, so with the quoted prefix each stays one argument. ``-S``: the runner needs
         only the standard library, and skipping site start-up saves time on every job."""
-        case_dir = shlex.quote(f"{self.prefix}cases/").replace("{", "{{").replace("}", "}}") + "{wildcards.case}"
-        python = shlex.quote(sys.executable).replace("{", "{{").replace("}", "}}")
-        return f"{python} -S -m {self.runner} {case_dir} {{params.step}}"
+        def q(text: str) -> str:
+            return shlex.quote(text).replace("{", "{{").replace("}", "}}")
+
+        case_dir = q(f"{self.prefix}cases/") + "{wildcards.case}"
+        if self.runner == DEFAULT_RUNNER:
+            # By file path, not -m: skips runpy and the package imports on every job (the
+            # runner then imports its one helper, signature.py, from its own folder).
+            return f"{q(sys.executable)} -S {q(str(RUNSTEP_FILE))} {case_dir} {{params.step}}"
+        return f"{q(sys.executable)} -S -m {self.runner} {case_dir} {{params.step}}"
 
 
 def setup(config: dict[str, Any], workdir: str | None = None) -> RuleSet:

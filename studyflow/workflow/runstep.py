@@ -29,7 +29,6 @@ from __future__ import annotations
 
 import os
 import signal
-import subprocess
 import sys
 import time
 
@@ -73,10 +72,10 @@ def _descendants(pid: int) -> list[int]:
     return out
 
 
-def _kill_tree(proc: subprocess.Popen, sig_no: int) -> None:
+def _kill_tree(root: int, sig_no: int) -> None:
     # The solver shares our process group (so a signal to the run's group reaches it, and a
     # SIGKILL of the whole group leaves no orphan); to stop it alone we signal its tree.
-    for pid in [proc.pid, *_descendants(proc.pid)]:
+    for pid in [root, *_descendants(root)]:
         try:
             os.kill(pid, sig_no)
         except OSError:
@@ -85,6 +84,85 @@ def _kill_tree(proc: subprocess.Popen, sig_no: int) -> None:
 
 class _Interrupted(Exception):
     pass
+
+
+class _TimedOut(Exception):
+    pass
+
+
+def _spawn(argv: list[str], case_dir: str, log_fd: int) -> int:
+    """Start ``argv`` in ``case_dir`` with stdout and stderr to ``log_fd`` and no stdin; no shell.
+
+    ``os.posix_spawnp`` rather than ``subprocess``: the runner starts once per job, and the
+    subprocess module's imports cost more than the spawn. The child stays in our process group.
+    """
+    if not argv:
+        raise OSError(2, "empty command")
+    os.chdir(case_dir)  # posix_spawn has no cwd argument; this process serves one step only
+    devnull = os.open(os.devnull, os.O_RDONLY)
+    try:
+        actions = [(os.POSIX_SPAWN_DUP2, devnull, 0), (os.POSIX_SPAWN_DUP2, log_fd, 1),
+                   (os.POSIX_SPAWN_DUP2, log_fd, 2)]
+        # Python ignores SIGPIPE and SIGXFSZ; the solver gets the default behaviour back.
+        return os.posix_spawnp(argv[0], argv, dict(os.environ), file_actions=actions,
+                               setsigdef=(signal.SIGPIPE, signal.SIGXFSZ))
+    finally:
+        os.close(devnull)
+
+
+def _reap(pid: int) -> int:
+    _, status = os.waitpid(pid, 0)
+    return os.waitstatus_to_exitcode(status)
+
+
+def _stop(pid: int, first: int) -> None:
+    """Send ``first`` to the solver's tree, then SIGKILL what is left after the grace period."""
+    _kill_tree(pid, first)
+    signal.signal(signal.SIGALRM, _alarm)
+    signal.setitimer(signal.ITIMER_REAL, GRACE_S)
+    try:
+        _reap(pid)
+    except _TimedOut:
+        _kill_tree(pid, signal.SIGKILL)
+        _reap(pid)
+    finally:
+        signal.setitimer(signal.ITIMER_REAL, 0)
+
+
+def _alarm(signum, frame):  # noqa: ARG001
+    raise _TimedOut()
+
+
+def _wait(pid: int, limit: float | None) -> tuple[str, int | None]:
+    """Wait for the solver: ("done", exit code), ("timeout", None) or ("interrupted", None)."""
+    got: list[int] = []
+
+    def on_signal(signum, frame):  # noqa: ARG001
+        got.append(signum)
+        raise _Interrupted()
+
+    for s in (signal.SIGINT, signal.SIGTERM, signal.SIGHUP):
+        signal.signal(s, on_signal)
+    if limit:
+        signal.signal(signal.SIGALRM, _alarm)
+        signal.setitimer(signal.ITIMER_REAL, float(limit))
+    try:
+        code = _reap(pid)
+        outcome = "done"
+    except _TimedOut:
+        outcome, code = "timeout", None
+    except _Interrupted:
+        outcome, code = "interrupted", None
+    finally:
+        signal.setitimer(signal.ITIMER_REAL, 0)
+        for s in (signal.SIGINT, signal.SIGTERM, signal.SIGHUP):
+            signal.signal(s, signal.SIG_IGN)  # the status and marker must be written whole now
+    if outcome == "timeout":
+        _stop(pid, signal.SIGTERM)
+    elif outcome == "interrupted":
+        # A SIGINT to the group reached the solver too; a SIGTERM from Snakemake did not.
+        _stop(pid, signal.SIGINT if got[0] == signal.SIGINT else signal.SIGTERM)
+    return outcome, code
 
 
 def run(case_dir: str, step: str) -> int:
@@ -141,44 +219,20 @@ def run(case_dir: str, step: str) -> int:
 
     os.makedirs(os.path.join(case_dir, "logs"), exist_ok=True)
     limit = doc.get("time_limit_s")
-    interrupted: list[int] = []
-
-    def on_signal(signum, frame):  # noqa: ARG001
-        interrupted.append(signum)
-        raise _Interrupted()
-
     argv = [str(a) for a in doc.get("argv", [])]
-    with open(os.path.join(case_dir, "logs", f"{step}.log"), "wb") as log:
-        try:
-            proc = subprocess.Popen(argv, cwd=case_dir, stdout=log, stderr=subprocess.STDOUT,
-                                    stdin=subprocess.DEVNULL)
-        except OSError as exc:
-            log.write(f"studyflow: cannot start {argv[:1]}: {exc}\n".encode())
-            return finish("failed", f"cannot start: {exc.strerror or exc}", None, EXIT_FAILED)
-        for s in (signal.SIGINT, signal.SIGTERM, signal.SIGHUP):
-            signal.signal(s, on_signal)
-        try:
-            try:
-                code = proc.wait(timeout=limit)
-            except subprocess.TimeoutExpired:
-                _kill_tree(proc, signal.SIGTERM)
-                try:
-                    proc.wait(timeout=GRACE_S)
-                except subprocess.TimeoutExpired:
-                    _kill_tree(proc, signal.SIGKILL)
-                    proc.wait()
-                return finish("failed", f"timed out after {limit:g} s", None, EXIT_FAILED)
-        except _Interrupted:
-            for s in (signal.SIGINT, signal.SIGTERM, signal.SIGHUP):
-                signal.signal(s, signal.SIG_IGN)
-            # A SIGINT to the group reached the solver too; a SIGTERM from Snakemake did not.
-            _kill_tree(proc, signal.SIGTERM if interrupted[0] != signal.SIGINT else signal.SIGINT)
-            try:
-                proc.wait(timeout=GRACE_S)
-            except subprocess.TimeoutExpired:
-                _kill_tree(proc, signal.SIGKILL)
-                proc.wait()
-            return finish("failed", "interrupted", None, EXIT_INTERRUPTED)
+    fd = os.open(os.path.join(case_dir, "logs", f"{step}.log"), os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o644)
+    try:
+        pid = _spawn(argv, case_dir, fd)
+    except OSError as exc:
+        os.write(fd, f"studyflow: cannot start {argv[:1]}: {exc}\n".encode())
+        os.close(fd)
+        return finish("failed", f"cannot start: {exc.strerror or exc}", None, EXIT_FAILED)
+    os.close(fd)
+    outcome, code = _wait(pid, limit)
+    if outcome == "timeout":
+        return finish("failed", f"timed out after {limit:g} s", None, EXIT_FAILED)
+    if outcome == "interrupted":
+        return finish("failed", "interrupted", None, EXIT_INTERRUPTED)
 
     if code != 0:
         reason = f"exit code {code}"
