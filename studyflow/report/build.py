@@ -360,6 +360,12 @@ def build_report(study: str | os.PathLike | Any, out: str | os.PathLike | None =
                          "extrapolated": fmt(r.get("extrapolated")), "order": fmt(r.get("order")),
                          "value_fine": fmt(fine), "U": fmt(big_u), "U_pct": pct, "gci_fine": fmt(r.get("gci_fine")),
                          "verdict": r.get("verdict", "-"), "cls": verdict_class(r.get("verdict"))})
+    tally = []
+    if len(summary) and "verdict" in summary:
+        for quantity, g in summary.groupby("quantity", sort=False):
+            counts_q = g["verdict"].astype(str).value_counts()
+            tally.append({"quantity": quantity, "n": len(g),
+                          "chips": [{"verdict": v, "count": int(n), "cls": verdict_class(v)} for v, n in counts_q.items()]})
     table_ctx = []
     for t in tables:
         shown = t.name in ("uncertainty-summary", "profile-summary", "cases")
@@ -385,7 +391,7 @@ def build_report(study: str | os.PathLike | Any, out: str | os.PathLike | None =
         "version": __version__, "title": data.settings.title, "description": data.settings.description,
         "sections": sections, "counts": {k: counts.get(k, 0) for k in ("done", "failed", "pending")},
         "total": max(total, 1), "built": built.strftime("%Y-%m-%d %H:%M"), "notices": notices,
-        "verdicts": verdicts, "more_verdicts": max(0, len(summary) - MAX_VERDICT_CARDS),
+        "verdicts": verdicts, "more_verdicts": max(0, len(summary) - MAX_VERDICT_CARDS), "tally": tally,
         "quantities": quantities, "sweeps": [fig_ctx(f) for f in sweep_figs], "sweeps_num": sweeps_num,
         "histories": [fig_ctx(f) for f in hist_figs], "iter_num": iter_num,
         "case_table_html": page.table_html(ctable), "fields_case": fields_case,
