@@ -98,8 +98,11 @@ def _spawn(argv: list[str], case_dir: str, log_fd: int) -> int:
     """
     if not argv:
         raise OSError(2, "empty command")
-    os.chdir(case_dir)  # posix_spawn has no cwd argument; this process serves one step only
+    here = os.getcwd()
     devnull = os.open(os.devnull, os.O_RDONLY)
+    # posix_spawn has no cwd argument: the child inherits ours, so we step into the case folder
+    # for the spawn only (run() is also called in-process, by studyflow.cluster.batchstep).
+    os.chdir(case_dir)
     try:
         actions = [(os.POSIX_SPAWN_DUP2, devnull, 0), (os.POSIX_SPAWN_DUP2, log_fd, 1),
                    (os.POSIX_SPAWN_DUP2, log_fd, 2)]
@@ -107,6 +110,7 @@ def _spawn(argv: list[str], case_dir: str, log_fd: int) -> int:
         return os.posix_spawnp(argv[0], argv, dict(os.environ), file_actions=actions,
                                setsigdef=(signal.SIGPIPE, signal.SIGXFSZ))
     finally:
+        os.chdir(here)
         os.close(devnull)
 
 
