@@ -170,6 +170,20 @@ def _wait(pid: int, limit: float | None) -> tuple[str, int | None]:
 
 
 def run(case_dir: str, step: str) -> int:
+    """Run ``step`` of the case in ``case_dir``; returns the exit code (0 ok, 1 failed, 130
+    interrupted, 2 not rendered). Signal handlers are restored on return, so a caller running
+    several steps in one process (``studyflow.cluster.batchstep``) keeps its own."""
+    watched = (signal.SIGINT, signal.SIGTERM, signal.SIGHUP, signal.SIGALRM)
+    saved = {s: signal.getsignal(s) for s in watched}
+    try:
+        return _run(case_dir, step)
+    finally:
+        for s, handler in saved.items():
+            if handler is not None:
+                signal.signal(s, handler)
+
+
+def _run(case_dir: str, step: str) -> int:
     case_dir = os.path.abspath(case_dir)
     state_dir = os.path.join(case_dir, sig.STATE)
     status_file = sig.status_path(case_dir, step)
