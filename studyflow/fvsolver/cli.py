@@ -29,7 +29,7 @@ def main(argv: list[str] | None = None) -> int:
     except CaseFileError as exc:
         print(f"studyflow-fv: {exc}", file=sys.stderr)
         return exc.exit_code
-    from .run import solve, write
+    from .run import solve, write  # scipy and meshio load only when there is a case to solve
 
     def log(line: str) -> None:
         if not args.quiet:

@@ -13,7 +13,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import brentq
 
 
 def exp_nodes(length: float, n: int, a: float) -> np.ndarray:
@@ -41,7 +40,18 @@ def a_for_first_fraction(target: float) -> float:
     """Solve a/(e^a - 1) = target for a (target > 0): matches a first cell size."""
     if abs(target - 1.0) < 1e-12:
         return 0.0
-    return float(brentq(lambda a: first_fraction(a) - target, -50.0, 50.0, xtol=1e-14))
+    # a/(e^a - 1) falls monotonically in a: bisection (scipy.optimize would cost a slow import
+    # in every solver run)
+    lo, hi = -50.0, 50.0
+    for _ in range(200):
+        mid = 0.5 * (lo + hi)
+        if first_fraction(mid) > target:
+            lo = mid
+        else:
+            hi = mid
+        if hi - lo < 1e-14:
+            break
+    return 0.5 * (lo + hi)
 
 
 def clustered(x0: float, x1: float, n: int, stretch: float, toward: str) -> np.ndarray:

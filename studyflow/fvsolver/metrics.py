@@ -19,6 +19,8 @@ from typing import Any
 
 import numpy as np
 
+from . import manufactured
+from .boundary import Wall
 from .cases import Problem, plate_counts
 from .grid import Grid
 
@@ -35,8 +37,6 @@ def wall_shear(prob: Problem, u: np.ndarray, v: np.ndarray) -> dict[str, dict[st
     g = prob.grid
     nu = prob.nu
     out: dict[str, dict[str, np.ndarray]] = {}
-    from .boundary import Wall
-
     def walls(segments, at):
         mask = np.zeros(len(at), dtype=bool)
         slide = np.zeros(len(at))
@@ -182,8 +182,6 @@ def channel(prob: Problem, u: np.ndarray, v: np.ndarray, p: np.ndarray) -> dict[
 
 
 def mms(prob: Problem, u: np.ndarray, v: np.ndarray, p: np.ndarray) -> dict[str, Any]:
-    from . import manufactured
-
     g = prob.grid
     out = {}
     X, Y = np.meshgrid(g.xf, g.yc, indexing="ij")

@@ -29,7 +29,6 @@ from typing import Callable
 
 import numpy as np
 import scipy.sparse.linalg as spla
-from scipy.interpolate import RegularGridInterpolator
 
 from .discretise import Discrete
 from .grid import Grid
@@ -136,13 +135,22 @@ def newton(d: Discrete, x0: np.ndarray, *, tolerance: float, max_iterations: int
     return out
 
 
+def _weights(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Left index into ``a`` and linear weight for each point of ``b`` (extrapolating past the ends)."""
+    k = np.clip(np.searchsorted(a, b) - 1, 0, len(a) - 2)
+    return k, (b - a[k]) / (a[k + 1] - a[k])
+
+
+def _bilinear(ax: np.ndarray, ay: np.ndarray, f: np.ndarray, bx: np.ndarray, by: np.ndarray) -> np.ndarray:
+    """Bilinear interpolation of f(ax, ay) on a tensor mesh to the tensor points (bx, by)."""
+    i, tx = _weights(ax, bx)
+    j, ty = _weights(ay, by)
+    fx = (1 - tx)[:, None] * f[i] + tx[:, None] * f[i + 1]
+    return (1 - ty)[None, :] * fx[:, j] + ty[None, :] * fx[:, j + 1]
+
+
 def interpolate(coarse: Grid, xc: tuple[np.ndarray, np.ndarray, np.ndarray], fine: Grid) -> tuple[np.ndarray, ...]:
     """Coarse-mesh u, v, p onto a finer mesh (bilinear on each staggered set, linear beyond the ends)."""
-    out = []
-    for (ax, ay), (bx, by), f in (((coarse.xf, coarse.yc), (fine.xf, fine.yc), xc[0]),
-                                  ((coarse.xc, coarse.yf), (fine.xc, fine.yf), xc[1]),
-                                  ((coarse.xc, coarse.yc), (fine.xc, fine.yc), xc[2])):
-        ip = RegularGridInterpolator((ax, ay), f, bounds_error=False, fill_value=None)
-        X, Y = np.meshgrid(bx, by, indexing="ij")
-        out.append(ip(np.stack([X.ravel(), Y.ravel()], axis=1)).reshape(X.shape))
-    return tuple(out)
+    return (_bilinear(coarse.xf, coarse.yc, xc[0], fine.xf, fine.yc),
+            _bilinear(coarse.xc, coarse.yf, xc[1], fine.xc, fine.yf),
+            _bilinear(coarse.xc, coarse.yc, xc[2], fine.xc, fine.yc))

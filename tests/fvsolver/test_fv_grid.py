@@ -34,3 +34,21 @@ def test_plate_mesh_is_nested_and_has_lines_at_leading_edge_and_x_equals_l():
     k0, k1 = int(np.argmin(np.abs(fine.xf - 0.0))), int(np.argmin(np.abs(fine.xf - 1.0)))
     for k in (k0, k1):
         assert 0.75 < d[k] / d[k - 1] < 1.25
+
+
+def test_coarse_to_fine_interpolation_is_exact_for_bilinear_fields():
+    # bilinear interpolation reproduces any f = a + b x + c y + d x y exactly, also where it
+    # extrapolates past the outermost coarse nodes (common practice; here used for mesh sequencing)
+    from studyflow.fvsolver.grid import Grid
+    from studyflow.fvsolver.newton import interpolate
+
+    coarse = Grid(clustered(0.0, 2.0, 8, 5.0, "low"), clustered(0.0, 1.0, 6, 3.0, "both"))
+    fine = Grid(clustered(0.0, 2.0, 16, 5.0, "low"), clustered(0.0, 1.0, 12, 3.0, "both"))
+
+    def f(x, y):
+        X, Y = np.meshgrid(x, y, indexing="ij")
+        return 0.3 + 1.1 * X - 0.7 * Y + 0.45 * X * Y
+
+    u, v, p = interpolate(coarse, (f(coarse.xf, coarse.yc), f(coarse.xc, coarse.yf), f(coarse.xc, coarse.yc)), fine)
+    assert np.allclose(u, f(fine.xf, fine.yc)) and np.allclose(v, f(fine.xc, fine.yf))
+    assert np.allclose(p, f(fine.xc, fine.yc))
