@@ -185,6 +185,8 @@ def momentum(asm: Assembly, fr: Frame, nu: float) -> np.ndarray:
             asm.linear(N[end][fixed], Lin.pick(N[end][fixed]) - Lin.const_(spec.value[fixed]))
         total = spec.kind == TOTAL
         if total.any():
+            # p + u^2/2 = p0 with the first cell's pressure standing for the face's: a half-cell
+            # shift, harmless where the inflow is uniform (the plate's inlet is 1 L upstream)
             r = N[end][total]
             asm.linear(r, Lin.pick(p_col[total]) - Lin.const_(spec.value[total]))
             asm.quadratic(r, Lin.pick(r), Lin.pick(r, 0.0, 0.5), +1.0)
