@@ -294,3 +294,57 @@ def test_assess_table_on_any_rows(rows, strict: bool, order: float) -> None:
     except StudyflowError:
         return
     assert isinstance(table, pd.DataFrame)
+
+
+# --- the collectors, on whatever a solver writes -----------------------------------------------------
+
+COLLECTORS = {
+    "out.json": [{"from": "json", "key": "a.b"}, {"from": "json", "key": "a.list", "coord_key": "a.x"},
+                 {"from": "json", "key": "a.list", "series": True}],
+    "out.yaml": [{"from": "yaml", "key": "a.b"}],
+    "out.toml": [{"from": "toml", "key": "a.b"}],
+    "out.csv": [{"from": "csv", "column": "u", "row": 1}, {"from": "csv", "column": 1, "series": True},
+                {"from": "csv", "column": "u", "coord_column": "x"}, {"from": "csv", "column": "u", "where": {"x": 0.5}}],
+    "solve.log": [{"from": "log", "pattern": r"r = (\S+)", "series": True},
+                  {"from": "log", "pattern": r"it (?P<it>\d+) r = (?P<value>\S+)", "iteration_group": "it", "series": True},
+                  {"from": "log", "pattern": r"CL = (\S+)", "match": "first"}],
+}
+BOUND = []
+
+
+def _bound():
+    if not BOUND:
+        from studyflow.collect.check import bind
+        from studyflow.spec.quantities import QuantitySpec
+
+        specs = {f"q{i}_{j}": QuantitySpec.model_validate({**opts, "file": file})
+                 for i, (file, options) in enumerate(COLLECTORS.items()) for j, opts in enumerate(options)}
+        bound, problems = bind(specs)
+        assert not problems, problems
+        BOUND.extend(bound.values())
+    return BOUND
+
+
+solver_text = st.one_of(
+    st.text(max_size=200),
+    st.lists(st.sampled_from(['{"a": {"b": 1.5, "list": [1, 2], "x": [0, 1]}}', '{"a": {"b": "NaN"}}', "{", "a:\n  b: 2",
+                              "[a]\nb = 3", "x,u\n0.5,1\n1.0,2", "x,u\n0.5", "u\n1e999", "r = 1e-3", "it 3 r = 0.1",
+                              "CL = nan", "CL = 1,5", "r = -", "\x00", ",,,", '"']), max_size=6).map("\n".join))
+
+
+@FEW
+@given(text=solver_text)
+def test_collectors_never_raise_on_solver_output(tmp_path_factory, text: str) -> None:
+    """A collector turns any output into a value or a failure with a reason; it never raises."""
+    from studyflow.collect import read_quantity
+
+    folder = tmp_path_factory.mktemp("case")
+    for name in COLLECTORS:
+        (folder / name).write_text(text, encoding="utf-8", errors="surrogateescape")
+    for b in _bound():
+        got = read_quantity(folder, b)
+        assert got.status in ("ok", "failed")
+        if got.status == "failed":
+            assert b.spec.file in got.reason  # the reason names the file
+        else:
+            assert np.isfinite(got.reading.values).all()
