@@ -37,6 +37,9 @@ class RunLock:
             os.close(fd)
             who = (f"pid {holder.get('pid', '?')} on {holder.get('host', '?')}, started {holder.get('started', '?')}"
                    if holder else "another process")
+            if holder and holder.get("host") == socket.gethostname() and not _alive(holder.get("pid")):
+                # The driver was killed alone; the engine it started inherited the lock and runs on.
+                who += "; that process has ended, but the workflow engine it started still runs its steps"
             raise StudyBusyError(f"{self.path.parent.parent}: a run is already going ({who}); "
                                  "wait for it to end or stop it (Ctrl-C in its terminal)") from None
         info = {"pid": os.getpid(), "host": socket.gethostname(),
@@ -60,6 +63,18 @@ class RunLock:
 
     def __exit__(self, *exc: object) -> None:
         self.release()
+
+
+def _alive(pid: Any) -> bool:
+    if not isinstance(pid, int) or pid <= 0:
+        return True  # unknown: do not claim it ended
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        pass
+    return True
 
 
 def _read(fd: int) -> dict[str, Any]:
