@@ -4,7 +4,8 @@ Every problem found is reported together, each naming the file, the key and the 
 Tables and keys (defaults in brackets):
 
     [case]    kind = "plate" | "cavity" | "channel" | "mms" | "step";  reynolds (per kind, below)
-    [domain]  plate: upstream [1.0], height [3.0], buffer [0.5] in plate lengths
+    [domain]  plate: upstream [1.0], height [3.0], buffer [0.5] in plate lengths,
+              inlet ["total_pressure" | "velocity"], top ["open" | "slip"]
               channel: length [10.0] in channel heights; step: length [15.0] in outlet heights
     [mesh]    nx, ny (cells); stretch_x, stretch_y: size ratio of the far-end to the near-end
               cell of each stretched segment (1 = uniform)
@@ -167,6 +168,8 @@ def parse(data: dict, file: str = "<case>") -> CaseConfig:
         domain["upstream"] = r.get("domain", "upstream", 1.0, "pos", min=0.05, max=100)
         domain["height"] = r.get("domain", "height", 3.0, "pos", min=0.05, max=100)
         domain["buffer"] = r.get("domain", "buffer", 0.5, "pos", min=0.01, max=100)
+        extra["inlet"] = r.get("domain", "inlet", "total_pressure", "str", choices=("total_pressure", "velocity"))
+        extra["top"] = r.get("domain", "top", "open", "str", choices=("open", "slip"))
         extra["stations"] = r.get("plate", "stations", [0.1 * k for k in range(1, 11)], "fractions", lo=0.0, hi=1.0)
         extra["profile_stations"] = r.get("plate", "profile_stations", [0.5], "fractions", lo=0.0, hi=1.0)
         if isinstance(nx, int) and nx < 16:
