@@ -10,9 +10,10 @@ line. The inlet holds the total pressure p + |u|^2/2 = 1/2 instead of the veloci
 top and the outlet are open at p = 0, so the displacement of the boundary layer pushes fluid
 out through the top rather than accelerating the outer flow. The wall continues past x = 1 as
 a buffer so the outlet and a trailing-edge singularity stay away from the measured part. A
-fixed-velocity inlet close to the leading edge under a low top boundary instead makes the
-drag 3-4 % high with an observed order near 0.5 that no refinement cures (the blockage and
-the inlet's interaction with the leading-edge singularity are domain errors, not mesh errors).
+fixed-velocity inlet close to the leading edge under a low top boundary (``inlet = "velocity"``,
+``top = "slip"``) instead keeps the drag several per cent high on every mesh (+5 % with the inlet
+0.25 L ahead and the top 1 L up): blockage and the inlet's interaction with the leading-edge
+singularity are domain errors, not mesh errors.
 """
 
 from __future__ import annotations
