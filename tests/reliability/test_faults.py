@@ -262,3 +262,20 @@ def test_disk_full_while_writing_the_uncertainty_table(collected: Path, fail_at:
     assert now["uncertainty.csv"] == old["uncertainty.csv"]
     api.assess(root)
     assert _tables_on_disk(root)["uncertainty.csv"] != old["uncertainty.csv"]
+
+
+@pytest.mark.xfail(strict=True, reason="the command line has no exit code for a failing environment: the OSError "
+                                       "(disk full) escapes main() as a traceback, and Python's exit code 1 reads as "
+                                       "'some cases failed' in the documented table; the lead is to choose a code")
+def test_disk_full_at_the_command_line_is_one_clear_message(collected: Path, monkeypatch: pytest.MonkeyPatch,
+                                                            capsys: pytest.CaptureFixture) -> None:
+    from studyflow.cli import main
+
+    monkeypatch.setattr(os, "fdopen", _FullDisk(os.fdopen, 1))
+    try:
+        code = main(["collect", str(collected)])
+    finally:
+        monkeypatch.undo()
+    err = capsys.readouterr().err
+    assert code not in (EXIT_OK, EXIT_CASES_FAILED)
+    assert "No space left on device" in err and "results" in err

@@ -116,6 +116,7 @@ NASTY = {
     "pipe": "a | touch pwned-pipe && b",
     "redirect": "> pwned-redirect",
     "braces": "{a,b}",
+    "jinja": "{{ 7 * 7 }}{% if true %}x{% endif %}",  # a value is data: never rendered a second time
 }
 
 DUMP = """\
