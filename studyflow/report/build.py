@@ -14,6 +14,7 @@ import pandas as pd
 from .. import __version__
 from ..analysis import profile_summary
 from ..errors import InputError, Problem
+from ..fsutil import atomic_write_text
 from . import fields as fieldpics
 from . import page
 from .data import StudyData, load
@@ -93,12 +94,10 @@ class _Builder:
         self.tabdir = out / "tables"
         self.renderer_argv = renderer_argv
         self.figures: list[FigureFile] = []
-        self.section_of: dict[str, str] = {}
 
     def save(self, fig, name: str, title: str, caption: str, section: str, note: str = "") -> FigureFile:
         ff = save_figure(fig, self.figdir, name, title, caption, note)
         self.figures.append(ff)
-        self.section_of[name] = section
         return ff
 
     # --- quantities --------------------------------------------------------------------------------
@@ -230,8 +229,7 @@ class _Builder:
         """Choose the case, read its fields and start the off-screen renderer (it runs meanwhile)."""
         finest, family = self.field_case(table)
         if finest is None:
-            return {"case": "", "notes": ["No finished case has a field or mesh file (VTU, VTK, XDMF, gmsh MSH) "
-                                          "to draw."]}
+            return {"case": "", "notes": ["No finished case has a field or mesh file (VTU, VTK, XDMF, gmsh MSH) to draw."]}
         state, path = finest
         work: dict[str, Any] = {"case": state.case, "state": state, "path": path, "family": family, "notes": []}
         try:
@@ -264,7 +262,6 @@ class _Builder:
                 svg_wrapping_png(job.png, svg)
                 ff = FigureFile(name, title, caption + " Drawn off-screen with pyvista.", job.png, svg)
                 self.figures.append(ff)
-                self.section_of[name] = "fields"
                 out.append(ff)
             else:
                 why = status.get(job.png, "not attempted")
@@ -312,8 +309,8 @@ def build_report(study: str | os.PathLike | Any, out: str | os.PathLike | None =
     notices = _notices(data, counts, total)
 
     # the field renderer (a child process) works while the matplotlib figures are drawn here
-    work = b.start_fields(ctable) if fields else {"case": "", "notes": ["Field pictures were not requested for "
-                                                                        "this build."]}
+    skipped = {"case": "", "notes": ["Field pictures were not requested for this build."]}
+    work = b.start_fields(ctable) if fields else skipped
     try:
         quantities = b.quantity_sections()
         sweep_figs = b.sweeps()
@@ -338,6 +335,21 @@ def build_report(study: str | os.PathLike | Any, out: str | os.PathLike | None =
     if data.results is not None:
         tables.append(save_table(data.results, b.tabdir, "results", "Collected results"))
 
+    context = _page_context(data, b, out_dir, built, ctable, counts, total, notices, summary, tables, quantities,
+                            sweep_figs, hist_figs, fields_case, field_figs, field_notes)
+    index = out_dir / "index.html"
+    atomic_write_text(index, page.render(context))
+    _remove_stale(b.figdir, {p for f in b.figures for p in (f.png, f.svg)})
+    _remove_stale(b.tabdir, {p for t in tables for p in t.files.values()})
+    return ReportResult(index=index, figures=b.figures, tables=tables, notices=notices,
+                        counts={k: counts.get(k, 0) for k in ("done", "failed", "pending")})
+
+
+def _page_context(data: StudyData, b: _Builder, out_dir: Path, built: datetime, ctable: pd.DataFrame,
+                  counts: Counter, total: int, notices: list[str], summary: pd.DataFrame, tables: list[TableFile],
+                  quantities: list[dict[str, Any]], sweep_figs: list[FigureFile], hist_figs: list[FigureFile],
+                  fields_case: str, field_figs: list[FigureFile], field_notes: list[str]) -> dict[str, Any]:
+    """Everything the page template needs, as plain values (numbers already formatted)."""
     sources = page.image_sources([f.png for f in b.figures], out_dir)
 
     def fig_ctx(f: FigureFile) -> dict[str, Any]:
@@ -387,7 +399,7 @@ def build_report(study: str | os.PathLike | Any, out: str | os.PathLike | None =
                  {"id": "tables", "title": "Tables", "subs": []},
                  {"id": "provenance", "title": "Provenance", "subs": []},
                  {"id": "cautions", "title": "Cautions", "subs": []}]
-    context = {
+    return {
         "version": __version__, "title": data.settings.title, "description": data.settings.description,
         "sections": sections, "counts": {k: counts.get(k, 0) for k in ("done", "failed", "pending")},
         "total": max(total, 1), "built": built.strftime("%Y-%m-%d %H:%M"), "notices": notices,
@@ -400,14 +412,6 @@ def build_report(study: str | os.PathLike | Any, out: str | os.PathLike | None =
         "prov_num": prov_num, "failures": failures(ctable), "caution_num": caution_num,
         "study_path": str(data.root),
     }
-    from ..fsutil import atomic_write_text
-
-    index = out_dir / "index.html"
-    atomic_write_text(index, page.render(context))
-    _remove_stale(b.figdir, {p for f in b.figures for p in (f.png, f.svg)})
-    _remove_stale(b.tabdir, {p for t in tables for p in t.files.values()})
-    return ReportResult(index=index, figures=b.figures, tables=tables, notices=notices,
-                        counts={k: counts.get(k, 0) for k in ("done", "failed", "pending")})
 
 
 def _remove_stale(folder: Path, keep: set[Path]) -> None:
