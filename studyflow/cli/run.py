@@ -27,8 +27,12 @@ def register(sub: Any) -> None:
                                    "'--' go to Snakemake unchanged.")
     r.add_argument("study", help="study folder or study file")
     r.add_argument("-j", "--cores", type=int, help="cores to use (default: all available)")
-    r.add_argument("--stop-on-failure", action="store_true",
-                   help="stop starting new cases after the first failure (default: keep going)")
+    going = r.add_mutually_exclusive_group()
+    going.add_argument("--keep-going", dest="stop_on_failure", action="store_false",
+                       help="run every other case when one fails (the default)")
+    going.add_argument("--stop-on-failure", dest="stop_on_failure", action="store_true",
+                       help="start no new case after the first failure")
+    r.set_defaults(stop_on_failure=False)
     r.add_argument("--retries", type=int, help="retries of a failed step (default: the study's retries)")
     r.add_argument("--timeout", type=float, metavar="MINUTES",
                    help="wall-time limit of every step in minutes (default: the study's)")

@@ -24,7 +24,8 @@ from studyflow.workflow.lock import RunLock, holder
 from sfstudies import executions, table_study
 
 REPO = Path(__file__).resolve().parents[2]
-CASES = [f"p{i:02d}--m{k}" for i in range(4) for k in range(2)]
+POINTS = 6
+CASES = [f"p{i:02d}--m{k}" for i in range(POINTS) for k in range(2)]
 
 
 def start_run(root: Path) -> subprocess.Popen:
@@ -73,11 +74,11 @@ def rerun_completes_each_case_once(root: Path) -> None:
     assert out.exit_code == 0
     assert Counter(executions(root)) == Counter({c: 1 for c in CASES})
     values = dict(zip(out.tables.results["case"], out.tables.results["value"]))
-    assert values == {f"p{i:02d}--m{k}": 10 * i + 2 * 2**k for i in range(4) for k in range(2)}
+    assert values == {f"p{i:02d}--m{k}": 10 * i + 2 * 2**k for i in range(POINTS) for k in range(2)}
 
 
 def test_sigint_to_the_group_then_rerun(tmp_path: Path) -> None:
-    root = table_study(tmp_path / "s", points=4, levels=2, sleep=1.0)
+    root = table_study(tmp_path / "s", points=POINTS, levels=2, sleep=1.0)
     proc = start_run(root)
     wait_for(lambda: done_markers(root) >= 2)
     pgid = engine_pgid(root)
@@ -93,7 +94,7 @@ def test_sigint_to_the_group_then_rerun(tmp_path: Path) -> None:
 
 
 def test_sigkill_of_everything_then_rerun(tmp_path: Path) -> None:
-    root = table_study(tmp_path / "s", points=4, levels=2, sleep=1.0)
+    root = table_study(tmp_path / "s", points=POINTS, levels=2, sleep=1.0)
     proc = start_run(root)
     wait_for(lambda: done_markers(root) >= 2)
     pgid = engine_pgid(root)
