@@ -160,6 +160,7 @@ def select(layout: StudyLayout, fields: bool = True,
     study_prefix = PurePosixPath(PAYLOAD) / layout.study_rel
 
     def walk(root: Path, prefix: PurePosixPath, role_for) -> None:
+        real_root = root.resolve()
         for dirpath, dirnames, filenames in os.walk(root):
             base = Path(dirpath)
             dirnames.sort()
@@ -179,6 +180,10 @@ def select(layout: StudyLayout, fields: bool = True,
                 bundle_path = (prefix / rel).as_posix()
                 if not src.exists():
                     skipped.append({"path": bundle_path, "why": "dangling link"})
+                    continue
+                if src.is_symlink() and real_root not in src.resolve().parents:
+                    # a link a solver planted must not ship a file from elsewhere to a stranger
+                    skipped.append({"path": bundle_path, "why": "link to a file outside the folder"})
                     continue
                 if not src.is_file():
                     skipped.append({"path": bundle_path, "why": "not a regular file"})
