@@ -420,3 +420,29 @@ def test_packaged_rules_have_one_shell_line_and_no_run_blocks() -> None:
         assert shells in ([], ["shell: _SF.shell_command"]), (smk, shells)
         assert not any(re.match(r"^\s*run\s*:", line) for line in code), smk
         assert "wildcard_constraints" in text and r'case=r"[A-Za-z0-9][A-Za-z0-9._-]*"' in text
+
+
+# --- a reviewer bundle ships nothing from outside the study --------------------------------------
+
+def test_pack_does_not_ship_files_that_links_pull_in_from_outside(tmp_path: Path) -> None:
+    """A link a solver planted in its case folder (absolute or relative, leading out of the
+    study) must not put the target's bytes into a bundle that goes to a stranger."""
+    from relsupport import fault_study
+
+    (tmp_path / "secret.txt").write_text("TOPSECRET-4711\n")
+    root = fault_study(tmp_path / "s", {"a": "ok"}, levels=2)
+    run_direct(root)
+    api.collect(root)
+    case = root / "cases" / "a--m0"
+    (case / "leak-abs.txt").symlink_to(tmp_path / "secret.txt")
+    (case / "leak-rel.txt").symlink_to("../../../secret.txt")
+    (case / "inside.txt").symlink_to("out.json")  # a link that stays inside is fine
+    result = api.pack(root, str(tmp_path / "bundle.tar.gz"))
+    with tarfile.open(tmp_path / "bundle.tar.gz") as tf:
+        names = tf.getnames()
+        blobs = b"".join(tf.extractfile(m).read() for m in tf.getmembers() if m.isreg())
+    assert b"TOPSECRET-4711" not in blobs
+    assert not any("leak" in n for n in names)
+    skipped = {s["path"].rsplit("/", 1)[-1]: s["why"] for s in result.skipped}
+    assert "outside" in skipped["leak-abs.txt"] and "outside" in skipped["leak-rel.txt"]
+    assert any(n.endswith("cases/a--m0/inside.txt") for n in names)
