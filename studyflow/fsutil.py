@@ -5,26 +5,32 @@ from __future__ import annotations
 import hashlib
 import os
 import tempfile
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
+from typing import BinaryIO
 
 from .errors import UnsafePathError
 
 
-def atomic_write_bytes(path: str | os.PathLike, data: bytes) -> None:
-    """Write ``data`` to ``path`` so readers see the old file or the new one, never half of it.
+@contextmanager
+def atomic_output(path: str | os.PathLike, mode: int = 0o644) -> Iterator[BinaryIO]:
+    """A binary file handle whose content replaces ``path`` only when the block ends cleanly.
 
     The bytes go to a temporary file in the same folder, are flushed to disk, then renamed over
-    the target (rename is atomic on POSIX within one file system). If writing fails (disk full),
-    the temporary file is removed and the old file is untouched.
+    the target (rename is atomic on POSIX within one file system), so readers see the old file or
+    the new one, never half of it. If the block fails (disk full, interrupt), the temporary file
+    is removed and the old file is untouched.
     """
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
     try:
         with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
+            yield fh
             fh.flush()
             os.fsync(fh.fileno())
+        os.chmod(tmp, mode)
         os.replace(tmp, path)
     except BaseException:
         try:
@@ -32,6 +38,12 @@ def atomic_write_bytes(path: str | os.PathLike, data: bytes) -> None:
         except FileNotFoundError:
             pass
         raise
+
+
+def atomic_write_bytes(path: str | os.PathLike, data: bytes) -> None:
+    """Write ``data`` to ``path`` so readers see the old file or the new one, never half of it."""
+    with atomic_output(path) as fh:
+        fh.write(data)
 
 
 def atomic_write_many(files: "dict[str | os.PathLike, bytes]") -> None:

@@ -16,7 +16,6 @@ import json
 import os
 import shlex
 import tarfile
-import tempfile
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -25,7 +24,7 @@ from typing import Any, BinaryIO
 import studyflow
 
 from ..errors import StudyflowError
-from ..fsutil import sha256_bytes
+from ..fsutil import atomic_output, sha256_bytes
 from ..workflow.lock import RunLock
 from . import environment as env
 from .layout import PAYLOAD, StudyLayout, locate, select
@@ -291,35 +290,22 @@ def _pack_locked(layout: StudyLayout, archive: str | os.PathLike | None, fields:
     mtime = _epoch(manifest.created)
     top = layout.study_dir.name + "-bundle"
 
-    out.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(dir=out.parent, prefix=f".{out.name}.", suffix=".tmp")
     total = 0
-    try:
-        with os.fdopen(fd, "wb") as raw:
-            with gzip.GzipFile(filename="", mode="wb", fileobj=raw, mtime=mtime, compresslevel=compresslevel) as gz, \
-                    tarfile.open(fileobj=gz, mode="w", format=tarfile.PAX_FORMAT) as tf:
-                for name, data in ((MANIFEST_NAME, manifest_bytes), (ENVIRONMENT_NAME, env_bytes)):
-                    tf.addfile(_info(f"{top}/{name}", len(data), mtime), io.BytesIO(data))
-                by_path = manifest.by_path()
-                for m in members:
-                    entry = by_path[m.path]
-                    with open(m.source, "rb") as fh:
-                        reader = _CheckedReader(fh)
-                        executable = os.access(m.source, os.X_OK)
-                        tf.addfile(_info(f"{top}/{m.path}", entry.size, mtime, executable), reader)
-                        if reader.h.hexdigest() != entry.sha256:
-                            raise PackError(f"{m.source}: changed while packing; pack again when no run is active")
-                    total += entry.size
-            raw.flush()
-            os.fsync(raw.fileno())
-        os.chmod(tmp, 0o644)
-        os.replace(tmp, out)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise
+    with atomic_output(out) as raw:
+        with gzip.GzipFile(filename="", mode="wb", fileobj=raw, mtime=mtime, compresslevel=compresslevel) as gz, \
+                tarfile.open(fileobj=gz, mode="w", format=tarfile.PAX_FORMAT) as tf:
+            for name, data in ((MANIFEST_NAME, manifest_bytes), (ENVIRONMENT_NAME, env_bytes)):
+                tf.addfile(_info(f"{top}/{name}", len(data), mtime), io.BytesIO(data))
+            by_path = manifest.by_path()
+            for m in members:
+                entry = by_path[m.path]
+                with open(m.source, "rb") as fh:
+                    reader = _CheckedReader(fh)
+                    executable = os.access(m.source, os.X_OK)
+                    tf.addfile(_info(f"{top}/{m.path}", entry.size, mtime, executable), reader)
+                    if reader.h.hexdigest() != entry.sha256:
+                        raise PackError(f"{m.source}: changed while packing; pack again when no run is active")
+                total += entry.size
     roles = {e.role for e in entries}
     warnings = []
     if "results" not in roles:
