@@ -88,6 +88,16 @@ def test_step_command_probe_is_refused_by_the_sandbox(probe: str, tmp_path: Path
     assert "refused by the sandbox" in str(info.value) and "steps[0].run" in str(info.value)
 
 
+@pytest.mark.parametrize("target", ["../secret.txt", "../../secret.txt", "/etc/passwd", "sub/../../secret.txt"])
+def test_template_include_cannot_leave_the_template_folder(target: str, tmp_path: Path) -> None:
+    (tmp_path / "secret.txt").write_text("TOPSECRET\n")
+    root = _probe_study(tmp_path / "s", f"{{% include '{target}' %}}\n")
+    with pytest.raises(TemplateError) as info:
+        api.render(root)
+    assert "case.txt:1" in str(info.value) and "TOPSECRET" not in str(info.value)
+    assert not (root / "cases").exists()
+
+
 def test_template_file_linked_outside_is_refused(tmp_path: Path) -> None:
     secret = tmp_path / "secret.txt"
     secret.write_text("password\n")
