@@ -378,6 +378,13 @@ def _page_context(data: StudyData, b: _Builder, out_dir: Path, built: datetime, 
             counts_q = g["verdict"].astype(str).value_counts()
             tally.append({"quantity": quantity, "n": len(g),
                           "chips": [{"verdict": v, "count": int(n), "cls": verdict_class(v)} for v, n in counts_q.items()]})
+    assessed_points = set(summary["point"].astype(str)) if len(summary) else set()
+    waiting = []
+    for point, g in ctable.groupby(ctable["point"].astype(str), sort=False):
+        open_cases = g[g["status"].astype(str) != "done"]
+        if point not in assessed_points and len(open_cases):
+            waiting.append({"point": point, "cases": [
+                {"case": r["case"], "status": r["status"], "reason": r["reason"]} for r in open_cases.to_dict("records")]})
     table_ctx = []
     for t in tables:
         shown = t.name in ("uncertainty-summary", "profile-summary", "cases")
@@ -404,6 +411,7 @@ def _page_context(data: StudyData, b: _Builder, out_dir: Path, built: datetime, 
         "sections": sections, "counts": {k: counts.get(k, 0) for k in ("done", "failed", "pending")},
         "total": max(total, 1), "built": built.strftime("%Y-%m-%d %H:%M"), "notices": notices,
         "verdicts": verdicts, "more_verdicts": max(0, len(summary) - MAX_VERDICT_CARDS), "tally": tally,
+        "waiting": waiting[:MAX_VERDICT_CARDS], "more_waiting": max(0, len(waiting) - MAX_VERDICT_CARDS),
         "quantities": quantities, "sweeps": [fig_ctx(f) for f in sweep_figs], "sweeps_num": sweeps_num,
         "histories": [fig_ctx(f) for f in hist_figs], "iter_num": iter_num,
         "case_table_html": page.table_html(ctable), "fields_case": fields_case,

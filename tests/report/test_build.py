@@ -67,6 +67,10 @@ def test_pending_and_failed_cases_are_shown(built):
     assert result.counts == {"done": 16, "failed": 1, "pending": 1}
     assert "1 of 18 cases are pending" in page
     assert "linear solver diverged" in page
+    # the two points short of a finest case are listed as not assessed yet, with the case that holds them up
+    waiting = page.split("Not assessed yet", 1)[1].split("</ul>", 1)[0]
+    assert f"{point_id(1.0e5, 0.0)}--m2" in waiting and f"{point_id(1.0e5, 4.0)}--m2" in waiting
+    assert waiting.count("<li>") == 2
     cases = pd.read_csv(result.index.parent / "tables" / "cases.csv")
     assert (cases.status == "pending").sum() == 1 and (cases.status == "failed").sum() == 1
 
