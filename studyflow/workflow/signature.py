@@ -16,7 +16,6 @@ from __future__ import annotations
 import hashlib
 import json
 import os
-from typing import Any
 
 STATE = ".studyflow"
 
@@ -25,21 +24,21 @@ def _sha_text(text: str) -> str:
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
-def canonical(obj: Any) -> str:
+def canonical(obj: object) -> str:
     return json.dumps(obj, sort_keys=True, separators=(",", ":"), allow_nan=False)
 
 
-def command_hash(step_doc: dict[str, Any]) -> str:
+def command_hash(step_doc: dict[str, object]) -> str:
     """Hash of what the step does; the time limit and cores are left out on purpose (changing a
     limit must not rerun finished work)."""
     return _sha_text(canonical({k: step_doc.get(k) for k in ("argv", "reads", "writes", "upstream")}))
 
 
-def params_hash(case_doc: dict[str, Any]) -> str:
+def params_hash(case_doc: dict[str, object]) -> str:
     return _sha_text(canonical({"params": case_doc.get("params"), "constants": case_doc.get("constants")}))
 
 
-def mesh_hash(case_doc: dict[str, Any]) -> str:
+def mesh_hash(case_doc: dict[str, object]) -> str:
     return _sha_text(canonical(case_doc.get("mesh")))
 
 
@@ -56,7 +55,7 @@ def sha_file(path: str, chunk: int = 1 << 20) -> str:
     return h.hexdigest()
 
 
-def read_json(path: str) -> dict[str, Any] | None:
+def read_json(path: str) -> dict[str, object] | None:
     """The JSON object in ``path``, or None if it is missing or unreadable (e.g. cut short)."""
     try:
         with open(path, "rb") as fh:
@@ -66,7 +65,7 @@ def read_json(path: str) -> dict[str, Any] | None:
     return data if isinstance(data, dict) else None
 
 
-def write_json_atomic(path: str, obj: dict[str, Any]) -> None:
+def write_json_atomic(path: str, obj: dict[str, object]) -> None:
     """Readers see the old file or the new one, never half (write to a temporary file, then rename).
 
     No fsync: these files are cheap to lose. A marker lost or cut short by a machine crash reads
