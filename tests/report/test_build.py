@@ -62,7 +62,7 @@ def test_key_numbers_of_the_study_appear(built):
 
 
 def test_pending_and_failed_cases_are_shown(built):
-    root, result = built
+    _, result = built
     page = _page(built)
     assert result.counts == {"done": 16, "failed": 1, "pending": 1}
     assert "1 of 18 cases are pending" in page
