@@ -172,21 +172,25 @@ def load(root: str | Path) -> StudyData:
     root = Path(root).resolve()
     settings = load_settings(root)
     res_dir = root / "results"
-    files: dict[str, Path] = {}
     tables: dict[str, pd.DataFrame | None] = {}
+    try:
+        # The collection layer's reader restores its own column types; it needs all three of its tables.
+        collected = read_results(root)
+    except StudyflowError:
+        collected = None
+    else:
+        tables.update(results=collected.results, histories=collected.histories, cases=collected.cases)
+    files: dict[str, Path] = {}
     for stem in ("results", "histories", "cases", "uncertainty"):
-        df, path = read_table(res_dir, stem)
-        tables[stem] = df
+        if stem in tables:
+            found = [p for p in (res_dir / f"{stem}.parquet", res_dir / f"{stem}.csv") if p.is_file()]
+            if found:
+                files[stem] = found[0]
+            continue
+        # a partly collected study: read what is there, one table at a time
+        tables[stem], path = read_table(res_dir, stem)
         if path is not None:
             files[stem] = path
-    if all(tables[s] is not None for s in ("results", "histories", "cases")):
-        # The collection layer's reader restores its own column types; prefer it when it can read all three.
-        try:
-            collected = read_results(root)
-        except StudyflowError:
-            pass
-        else:
-            tables.update(results=collected.results, histories=collected.histories, cases=collected.cases)
     return StudyData(
         root=root,
         settings=settings,
