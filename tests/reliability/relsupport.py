@@ -30,7 +30,8 @@ def write_study(root: Path, study: str, files: dict[str, str]) -> Path:
 
 
 # The solver takes its behaviour from its first argument; once the file <study>/healed exists it
-# behaves (the engineer fixed the fault) and every later execution succeeds.
+# behaves (the engineer fixed the fault) and every later execution succeeds. A "gated" case waits
+# until the test creates <study>/go-<case>, so tests can stop a run at a known point.
 FAULT_SOLVER = r"""#!/bin/sh
 mode="$1"
 if [ -e ../../healed ]; then mode=ok; fi
@@ -38,6 +39,8 @@ echo "{{ case }} $mode" >> ../../executions.log
 case "$mode" in
   ok)        printf '{"q": %s}\n' "{{ a * 10 + 16 / mesh.nx ** 2 }}" > out.json ;;
   slow)      sleep 1; printf '{"q": %s}\n' "{{ a * 10 + 16 / mesh.nx ** 2 }}" > out.json ;;
+  gated)     n=0; while [ ! -e "../../go-{{ case }}" ] && [ $n -lt 900 ]; do sleep 0.05; n=$((n+1)); done
+             printf '{"q": %s}\n' "{{ a * 10 + 16 / mesh.nx ** 2 }}" > out.json ;;
   crash)     printf '{"q": ' > out.json; kill -SEGV $$ ;;
   hang)      sleep 60; printf '{"q": 1}\n' > out.json ;;
   exitvalid) printf '{"q": 99}\n' > out.json; exit 3 ;;
@@ -70,6 +73,11 @@ quantities:
   q: {{from: json, file: out.json, key: q}}
 {extra}"""
     return write_study(root, study, {"solve.sh": FAULT_SOLVER})
+
+
+def open_gate(root: Path, *cases: str) -> None:
+    for case in cases:
+        (root / f"go-{case}").touch()
 
 
 def executions(root: Path) -> Counter:

@@ -29,7 +29,8 @@ from studyflow import api
 from studyflow.errors import EXIT_BUSY, EXIT_CASES_FAILED, EXIT_INTERRUPTED, EXIT_OK, StudyBusyError
 from studyflow.workflow.lock import holder
 
-from relsupport import cli, executions, fault_study, gone, processes_under, run_direct, status, wait_for
+from relsupport import (cli, executions, fault_study, gone, open_gate, processes_under, run_direct, status,
+                        wait_for)
 
 FAULTS = {"good": "ok", "crash": "crash", "hang": "hang", "exitv": "exitvalid", "nan": "nan", "inf": "inf",
           "trunc": "truncated", "miss": "missing"}
@@ -105,42 +106,44 @@ def test_non_finite_output_alone_fails_the_run(tmp_path: Path) -> None:
     assert out.exit_code == EXIT_CASES_FAILED
 
 
-def test_sigkill_of_the_driver_alone_then_rerun(tmp_path: Path) -> None:
+def test_sigkill_of_the_driver_alone_then_rerun(tmp_path: Path, request: pytest.FixtureRequest) -> None:
     """SIGKILL of the ``studyflow run`` process only: its engine (own session) runs on, still
-    holding the study; a run meanwhile is refused; once the engine ends, a rerun runs only what
-    the engine did not finish and collects the table the killed driver never wrote."""
-    modes = {f"p{i}": "slow" for i in range(3)}
-    root = fault_study(tmp_path / "kill", modes, time_min=1)
+    holding the study; a run meanwhile is refused; once the engine ends, a rerun runs nothing
+    twice and collects the table the killed driver never wrote."""
+    cases = [f"p{i}--m0" for i in range(3)]
+    root = fault_study(tmp_path / "kill", {f"p{i}": "gated" for i in range(3)}, time_min=1)
+    request.addfinalizer(lambda: open_gate(root, *cases))  # if the test fails, no solver waits on
     proc = cli("run", str(root), "--cores", "1", "--quiet")
+    wait_for(lambda: len(executions(root)) == 1)  # the engine picks which case starts first
+    open_gate(root, *executions(root))
     wait_for(lambda: any_done(root))
     pgid = json.loads((root / ".studyflow" / "run.json").read_text())["engine_pgid"]
     proc.send_signal(signal.SIGKILL)
     proc.wait(timeout=30)
-    assert not gone(pgid)  # two more cases of 1 s each are still to run
+    assert not gone(pgid)  # the engine lives on: the other cases wait at their gates
     with pytest.raises(StudyBusyError) as info:
         api.run(root, progress=False)
     assert info.value.exit_code == EXIT_BUSY
     assert "a run is already going" in str(info.value) and str(root) in str(info.value)
     assert f"pid {proc.pid} " in str(info.value) and "that process has ended" in str(info.value)
+    open_gate(root, *cases)
     wait_for(lambda: gone(pgid), 60)
     assert holder(root / ".studyflow") is None  # the lock went with the engine: no unlock needed
     assert not (root / "results" / "results.csv").exists()
-    finished_by_orphan = executions(root)
     out = api.run(root, cores=2, progress=False)
     assert out.exit_code == EXIT_OK
-    counts = executions(root)
-    assert all(n == 1 for n in counts.values()) and set(counts) == {f"p{i}--m0" for i in range(3)}
-    assert set(c.case for c in out.cases).isdisjoint(
-        c for c in finished_by_orphan if (root / "cases" / c / "out.json").exists())
+    assert out.cases == []  # the orphaned engine finished every case; nothing runs twice
+    assert executions(root) == {c: 1 for c in cases}
     assert table(out)["value"].to_dict() == {f"p{i}--m0": 10.0 * (i + 1) + 1.0 for i in range(3)}
 
 
-def test_second_cli_run_refused_then_sigterm_to_the_driver(tmp_path: Path) -> None:
+def test_second_cli_run_refused_then_sigterm_to_the_driver(tmp_path: Path, request: pytest.FixtureRequest) -> None:
     """A real second ``studyflow run`` while one runs: refused with exit 6 naming the running one
     (its pid and host); the first is unharmed. Then SIGTERM to the first driver alone (what a
     batch system or ``kill PID`` sends): it stops the engine, exits 130, keeps finished cases."""
-    modes = {f"p{i}": "slow" for i in range(3)}
-    root = fault_study(tmp_path / "busy", modes, time_min=1)
+    cases = [f"p{i}--m0" for i in range(3)]
+    root = fault_study(tmp_path / "busy", {f"p{i}": "gated" for i in range(3)}, time_min=1)
+    request.addfinalizer(lambda: open_gate(root, *cases))  # if the test fails, no solver waits on
     first = cli("run", str(root), "--cores", "1", "--quiet")
     wait_for(lambda: (root / ".studyflow" / "run.json").exists() and holder(root / ".studyflow") is not None)
     second = cli("run", str(root), "--quiet")
@@ -148,19 +151,24 @@ def test_second_cli_run_refused_then_sigterm_to_the_driver(tmp_path: Path) -> No
     assert second.returncode == EXIT_BUSY
     assert f"{root}: a run is already going (pid {first.pid} on {os.uname().nodename}, started " in err
     assert first.poll() is None  # the refused run did not disturb the running one
+    wait_for(lambda: len(executions(root)) == 1)  # the engine picks which case starts first
+    open_gate(root, *executions(root))
     wait_for(lambda: any_done(root))
+    wait_for(lambda: len(executions(root)) == 2)  # the next case has started and waits at its gate
     pgid = json.loads((root / ".studyflow" / "run.json").read_text())["engine_pgid"]
     first.send_signal(signal.SIGTERM)
     assert first.wait(timeout=60) == EXIT_INTERRUPTED
     wait_for(lambda: gone(pgid), 30)
     assert holder(root / ".studyflow") is None
-    before = executions(root)
-    done_before = {c for c in before if (root / "cases" / c / ".studyflow" / "solve.done").exists()}
-    assert done_before and len(done_before) < 3
+    assert processes_under(root) == []  # the waiting solver was stopped too
+    done_before = {c for c in cases if (root / "cases" / c / ".studyflow" / "solve.done").exists()}
+    assert len(done_before) == 1
+    open_gate(root, *cases)
     out = api.run(root, cores=2, progress=False)
     assert out.exit_code == EXIT_OK
     assert done_before.isdisjoint(c.case for c in out.cases)  # finished cases are kept
-    assert all(executions(root)[c] == 1 for c in done_before)
+    counts = executions(root)
+    assert all(counts[c] == 1 for c in done_before) and set(counts) == set(cases)
     assert table(out)["value"].to_dict() == {f"p{i}--m0": 10.0 * (i + 1) + 1.0 for i in range(3)}
 
 
