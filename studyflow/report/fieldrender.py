@@ -47,7 +47,8 @@ def main(argv: list[str]) -> int:
             plotter = pv.Plotter(off_screen=True, window_size=size)
             plotter.set_background("#fbfaf6")
             plotter.add_mesh(mesh, scalars=item["array"], preference=item.get("association", "point"),
-                             cmap="cividis", show_edges=False,
+                             cmap="cividis", show_edges=mesh.n_cells <= 5000, edge_color="#d9d3c4",
+                             line_width=0.5,
                              scalar_bar_args={"title": item.get("title", item["array"]), "color": "#1d2a35",
                                               "vertical": True, "position_x": 0.86, "position_y": 0.1,
                                               "height": 0.8, "width": 0.06})
