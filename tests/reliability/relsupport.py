@@ -38,7 +38,6 @@ if [ -e ../../healed ]; then mode=ok; fi
 echo "{{ case }} $mode" >> ../../executions.log
 case "$mode" in
   ok)        printf '{"q": %s}\n' "{{ a * 10 + 16 / mesh.nx ** 2 }}" > out.json ;;
-  slow)      sleep 1; printf '{"q": %s}\n' "{{ a * 10 + 16 / mesh.nx ** 2 }}" > out.json ;;
   gated)     n=0; while [ ! -e "../../go-{{ case }}" ] && [ $n -lt 900 ]; do sleep 0.05; n=$((n+1)); done
              printf '{"q": %s}\n' "{{ a * 10 + 16 / mesh.nx ** 2 }}" > out.json ;;
   crash)     printf '{"q": ' > out.json; kill -SEGV $$ ;;
