@@ -20,7 +20,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT / "tests" / "report"))  # the synthetic study writer of the report tests
 sys.path.insert(0, str(ROOT))
 
-from synthetic import write_study
+from report_synthetic import write_study
 
 from studyflow.report import build_report
 

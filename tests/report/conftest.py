@@ -9,7 +9,7 @@ import pytest
 
 sys.path.insert(0, str(Path(__file__).parent))  # the helper modules beside the tests
 
-from synthetic import write_study
+from report_synthetic import write_study
 
 
 @pytest.fixture(scope="session")

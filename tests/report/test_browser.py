@@ -8,7 +8,7 @@ import time
 
 import pandas as pd
 import pytest
-from browser import Browser, available
+from report_browser import Browser, available
 
 pytestmark = pytest.mark.browser
 

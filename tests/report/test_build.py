@@ -10,7 +10,7 @@ from html.parser import HTMLParser
 
 import pandas as pd
 import pytest
-from synthetic import point_id, richardson
+from report_synthetic import point_id, richardson
 
 from studyflow.errors import InputError
 from studyflow.report import build_report
@@ -113,7 +113,7 @@ def test_page_is_self_contained(built):
 
 def test_rebuild_while_running_shows_progress(tmp_path):
     """A study with no analysis yet and a case that has just finished: counts follow the case folders."""
-    from synthetic import write_study
+    from report_synthetic import write_study
 
     root = write_study(tmp_path / "s", analysis=False, fields="none", res=[1.0e4, 3.0e4], angles=[0.0])
     first = build_report(root, fields=False)
@@ -133,7 +133,7 @@ def test_rebuild_while_running_shows_progress(tmp_path):
 
 
 def test_bad_report_block_names_file_key_and_value(tmp_path):
-    from synthetic import write_study
+    from report_synthetic import write_study
 
     root = write_study(tmp_path / "s", fields="none", res=[1.0e4], angles=[0.0], failed=False, pending=False)
     text = (root / "study.yaml").read_text().replace("y: cf,", "y: nope, colour: red,")
@@ -145,7 +145,7 @@ def test_bad_report_block_names_file_key_and_value(tmp_path):
 
 
 def test_reference_column_missing_names_the_column(tmp_path):
-    from synthetic import write_study
+    from report_synthetic import write_study
 
     root = write_study(tmp_path / "s", fields="none", res=[1.0e4], angles=[0.0], failed=False, pending=False)
     (root / "study.yaml").write_text((root / "study.yaml").read_text().replace("y: cf,", "y: tau,"))
@@ -169,7 +169,7 @@ def test_profiles_are_summarised_along_their_stations(built):
 
 
 def test_a_study_with_nothing_collected_still_gets_a_report(tmp_path):
-    from synthetic import write_study
+    from report_synthetic import write_study
 
     root = write_study(tmp_path / "s", res=[1.0e4], angles=[0.0], fields="none")
     for table in (root / "results").iterdir():
@@ -181,7 +181,7 @@ def test_a_study_with_nothing_collected_still_gets_a_report(tmp_path):
 
 
 def test_cells_stand_in_for_h_when_sizes_are_unknown(tmp_path):
-    from synthetic import write_study
+    from report_synthetic import write_study
 
     from studyflow.report.data import load
     from studyflow.report.figures.convergence import value_vs_size

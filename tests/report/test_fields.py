@@ -8,7 +8,7 @@ import meshio
 import numpy as np
 import pytest
 from matplotlib.collections import PolyCollection
-from synthetic import write_study, write_vtu
+from report_synthetic import write_study, write_vtu
 
 from studyflow.report import build_report
 from studyflow.report.fields import PictureJob, fallback_picture, mesh_family, render_pictures

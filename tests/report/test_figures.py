@@ -8,7 +8,7 @@ import numpy as np
 import pandas as pd
 import pytest
 from matplotlib.collections import LineCollection, PolyCollection
-from synthetic import H0, RATIO, point_id, write_study
+from report_synthetic import H0, RATIO, point_id, write_study
 
 from studyflow.report.data import load
 from studyflow.report.figures.convergence import error_vs_size, value_vs_size

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from synthetic import write_study
+from report_synthetic import write_study
 
 from studyflow.cli import main
 from studyflow.errors import EXIT_INVALID_INPUT, EXIT_OK
