@@ -9,11 +9,7 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_bvp
 
-from studyflow.fvsolver import config, run
-
-
-def solve_case(data: dict):
-    return run.solve(config.parse(data, "<test>"), log=lambda s: None)
+from fv_support import solve_case
 
 
 @pytest.fixture(scope="session")

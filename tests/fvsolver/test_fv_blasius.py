@@ -77,7 +77,7 @@ def test_a_confined_domain_gives_a_drag_error_refinement_does_not_remove():
     # Why the defaults: with a fixed-velocity inlet 0.25 L ahead of the leading edge and a slip
     # top 1 L up, blockage speeds the outer flow up; the drag stays several per cent above the
     # reference (Blasius + Imai's 2.326/Re_L, from memory) however fine the mesh
-    from conftest import solve_case
+    from fv_support import solve_case
 
     ref = 1.328 / np.sqrt(1.0e4) + 2.326 / 1.0e4
     err = []

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from conftest import solve_case
+from fv_support import solve_case
 
 from studyflow.fvsolver.newton import COLUMNS
 
