@@ -9,10 +9,10 @@ from __future__ import annotations
 import io
 import shutil
 import tarfile
+from collections.abc import Callable
 from contextlib import redirect_stderr, redirect_stdout
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Callable
 
 CORPUS = Path(__file__).resolve().parent / "corpus"
 

@@ -13,8 +13,8 @@ import subprocess
 import sys
 import time
 from collections import Counter
+from collections.abc import Callable
 from pathlib import Path
-from typing import Callable
 
 REPO = Path(__file__).resolve().parents[2]
 

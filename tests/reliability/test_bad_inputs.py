@@ -14,11 +14,10 @@ from pathlib import Path
 
 import pytest
 import yaml
-
-from studyflow.errors import EXIT_TEMPLATE
-
 from badinputs import CORPUS, KINDS, prepare
 from relsupport import snapshot
+
+from studyflow.errors import EXIT_TEMPLATE
 
 EXPECTED: dict[str, dict[str, dict]] = yaml.safe_load((CORPUS / "expected.yaml").read_text())
 ENTRIES = [(kind, name) for kind in KINDS for name in KINDS[kind][1]()]

@@ -24,13 +24,21 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
+from relsupport import (
+    cli,
+    executions,
+    fault_study,
+    gone,
+    open_gate,
+    processes_under,
+    run_direct,
+    status,
+    wait_for,
+)
 
 from studyflow import api
 from studyflow.errors import EXIT_BUSY, EXIT_CASES_FAILED, EXIT_INTERRUPTED, EXIT_OK, StudyBusyError
 from studyflow.workflow.lock import holder
-
-from relsupport import (cli, executions, fault_study, gone, open_gate, processes_under, run_direct, status,
-                        wait_for)
 
 FAULTS = {"good": "ok", "crash": "crash", "hang": "hang", "exitv": "exitvalid", "nan": "nan", "inf": "inf",
           "trunc": "truncated", "miss": "missing"}

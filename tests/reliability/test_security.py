@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import ast
 import json
-import os
 import re
 import shlex
 import sys
@@ -19,6 +18,7 @@ import tarfile
 from pathlib import Path
 
 import pytest
+from relsupport import run_direct, write_study
 
 from studyflow import api
 from studyflow.bundle.unpack import safe_extract
@@ -26,8 +26,6 @@ from studyflow.design.ids import format_value
 from studyflow.errors import StudySpecError, TemplateError, UnsafePathError
 from studyflow.spec.checks import POINT_ID
 from studyflow.workflow.rules_support import RuleSet
-
-from relsupport import executions, run_direct, write_study
 
 PACKAGE = Path(api.__file__).resolve().parent
 
@@ -143,7 +141,7 @@ GROUPS = [_VALUES[i:i + 4] for i in range(0, len(_VALUES), 4)]  # four values pe
 def _argv_study(root: Path, listed: bool) -> Path:
     """One case per group of four values; the step passes them in the command-string form (split
     before rendering) or the list form (one argument per item)."""
-    points = ", ".join("{id: g%d, %s}" % (i, ", ".join(f"v{j}: {json.dumps(v)}" for j, v in enumerate(group)))
+    points = ", ".join("{id: g" + str(i) + ", " + ", ".join(f"v{j}: {json.dumps(v)}" for j, v in enumerate(group)) + "}"
                        for i, group in enumerate(GROUPS))
     if listed:
         run = '["{{ python }}", "dump.py", "{{ v0 }}", "-{{ v1 }}", "{{ v2 }}={{ v3 }}"]'
@@ -491,7 +489,7 @@ quantities:
 def test_report_escapes_text_from_the_study(hostile_report) -> None:
     """Titles, parameter values and units from a study file from a stranger appear in the report
     as text, never as markup or script (HTML escaping, common practice)."""
-    root, result = hostile_report
+    _, result = hostile_report
     html = Path(result.index).read_text()
     for raw in ["<script>alert", "<img src=x", "<b onmouseover", "</td><script>", "<i>m</i>"]:
         assert raw not in html, raw
