@@ -20,6 +20,7 @@ EXIT_BUSY = 6  # another run holds the study
 EXIT_ANALYSIS = 7  # the data cannot be assessed (too few levels, non-positive sizes, ...)
 EXIT_AUDIT_FAILED = 8  # a reviewer audit found missing, altered or irreproducible files
 EXIT_UNSAFE = 9  # refused for safety: path escape, link, device file, sandbox breach
+EXIT_SYSTEM = 10  # the machine refused: disk full, permission denied, ... (nothing finished is lost)
 EXIT_INTERRUPTED = 130  # stopped by SIGINT; finished cases are kept
 
 

@@ -32,12 +32,12 @@ def atomic_output(path: str | os.PathLike, mode: int = 0o644) -> Iterator[Binary
             os.fsync(fh.fileno())
         os.chmod(tmp, mode)
         os.replace(tmp, path)
-    except BaseException:
+    except BaseException as exc:
         try:
             os.unlink(tmp)
         except FileNotFoundError:
             pass
-        raise
+        _raise_naming(exc, path)
 
 
 def atomic_write_bytes(path: str | os.PathLike, data: bytes) -> None:
@@ -46,7 +46,7 @@ def atomic_write_bytes(path: str | os.PathLike, data: bytes) -> None:
         fh.write(data)
 
 
-def atomic_write_many(files: "dict[str | os.PathLike, bytes]") -> None:
+def atomic_write_many(files: dict[str | os.PathLike, bytes]) -> None:
     """Replace several files as one set: all of them are written to temporary files (flushed to
     disk) first, and renamed over their targets only when every one was written.
 
@@ -54,6 +54,7 @@ def atomic_write_many(files: "dict[str | os.PathLike, bytes]") -> None:
     was, so readers never see some files of the new set beside others of the old one.
     """
     staged: list[tuple[str, Path]] = []
+    path = Path(".")
     try:
         for target, data in files.items():
             path = Path(target)
@@ -66,13 +67,21 @@ def atomic_write_many(files: "dict[str | os.PathLike, bytes]") -> None:
                 os.fsync(fh.fileno())
         for tmp, path in staged:
             os.replace(tmp, path)
-    except BaseException:
+    except BaseException as exc:
         for tmp, _ in staged:
             try:
                 os.unlink(tmp)
             except FileNotFoundError:
                 pass
-        raise
+        _raise_naming(exc, path)
+
+
+def _raise_naming(exc: BaseException, path: Path) -> None:
+    """Re-raise ``exc``; an OSError that names no file (ENOSPC from a write) gets the target's name,
+    so the one message the command line prints says which file could not be written."""
+    if isinstance(exc, OSError) and exc.filename is None:
+        raise OSError(exc.errno, exc.strerror or str(exc), str(path)) from exc
+    raise exc
 
 
 def atomic_write_text(path: str | os.PathLike, text: str) -> None:

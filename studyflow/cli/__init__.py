@@ -8,7 +8,8 @@ printed as one message, and turned into its exit code (``studyflow.errors``):
     0 ok · 1 some cases failed (recorded with reasons) · 2 bad command-line usage ·
     3 invalid study file or input · 4 template error · 5 workflow engine failure ·
     6 another run holds the study · 7 data cannot be assessed · 8 audit failed ·
-    9 refused for safety · 130 interrupted (finished cases are kept)
+    9 refused for safety · 10 the machine refused (disk full, permissions) ·
+    130 interrupted (finished cases are kept)
 """
 
 from __future__ import annotations
@@ -18,7 +19,7 @@ import importlib
 import sys
 
 from .. import __version__
-from ..errors import EXIT_INTERRUPTED, StudyflowError
+from ..errors import EXIT_INTERRUPTED, EXIT_SYSTEM, StudyflowError
 
 # One line per verb group, in the order their verbs appear in --help.
 VERB_MODULES = (
@@ -32,7 +33,7 @@ VERB_MODULES = (
 )
 
 EPILOG = ("exit codes: 0 ok, 1 some cases failed, 2 usage, 3 invalid input, 4 template error, "
-          "5 workflow engine, 6 study busy, 7 cannot assess, 8 audit failed, 9 unsafe, 130 interrupted")
+          "5 workflow engine, 6 study busy, 7 cannot assess, 8 audit failed, 9 unsafe, 10 system, 130 interrupted")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -74,6 +75,13 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("studyflow: interrupted", file=sys.stderr)
         return EXIT_INTERRUPTED
+    except OSError as err:
+        # Disk full, permission denied, ...: tables are written atomically, so what was on disk
+        # before stays intact; say which file and why instead of a traceback.
+        where = f": {err.filename}" if getattr(err, "filename", None) else ""
+        print(f"studyflow: error: {err.strerror or err}{where} (nothing already finished was lost)",
+              file=sys.stderr)
+        return EXIT_SYSTEM
 
 
 if __name__ == "__main__":

@@ -37,7 +37,7 @@ from relsupport import (
 )
 
 from studyflow import api
-from studyflow.errors import EXIT_BUSY, EXIT_CASES_FAILED, EXIT_INTERRUPTED, EXIT_OK, StudyBusyError
+from studyflow.errors import EXIT_BUSY, EXIT_CASES_FAILED, EXIT_INTERRUPTED, EXIT_OK, EXIT_SYSTEM, StudyBusyError
 from studyflow.workflow.lock import holder
 
 FAULTS = {"good": "ok", "crash": "crash", "hang": "hang", "exitv": "exitvalid", "nan": "nan", "inf": "inf",
@@ -280,9 +280,6 @@ def test_disk_full_while_writing_the_uncertainty_table(collected: Path, fail_at:
     assert _tables_on_disk(root)["uncertainty.csv"] != old["uncertainty.csv"]
 
 
-@pytest.mark.xfail(strict=True, reason="the command line has no exit code for a failing environment: the OSError "
-                                       "(disk full) escapes main() as a traceback, and Python's exit code 1 reads as "
-                                       "'some cases failed' in the documented table; the lead is to choose a code")
 def test_disk_full_at_the_command_line_is_one_clear_message(collected: Path, monkeypatch: pytest.MonkeyPatch,
                                                             capsys: pytest.CaptureFixture) -> None:
     from studyflow.cli import main
@@ -293,5 +290,6 @@ def test_disk_full_at_the_command_line_is_one_clear_message(collected: Path, mon
     finally:
         monkeypatch.undo()
     err = capsys.readouterr().err
+    assert code == EXIT_SYSTEM  # documented in README and studyflow.errors
     assert code not in (EXIT_OK, EXIT_CASES_FAILED)
     assert "No space left on device" in err and "results" in err
