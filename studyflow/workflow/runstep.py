@@ -28,9 +28,13 @@ Reasons: ``exit code N``, ``killed by signal NAME``, ``timed out after S s``, ``
 from __future__ import annotations
 
 import os
-import signal
 import sys
 import time
+
+try:  # the C core of ``signal``: the module itself imports enum, which this runner can do without
+    import _signal as signal
+except ImportError:  # pragma: no cover - not CPython
+    import signal  # type: ignore[no-redef]
 
 try:  # run as a module of the package
     from . import signature as sig
@@ -255,8 +259,10 @@ def _run(case_dir: str, step: str) -> int:
     if code != 0:
         reason = f"exit code {code}"
         if code < 0:
+            import signal as named
+
             try:
-                reason = f"killed by signal {signal.Signals(-code).name}"
+                reason = f"killed by signal {named.Signals(-code).name}"
             except ValueError:
                 pass
         return finish("failed", reason, code, EXIT_FAILED)
