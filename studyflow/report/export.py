@@ -72,6 +72,23 @@ def svg_wrapping_png(png: Path, svg: Path) -> None:
 TYPESET_ROWS = 5000
 
 
+def _md_escape(v: object) -> object:
+    """HTML special characters and table pipes escaped in text: a study file from a stranger must
+    not put markup into a table a reviewer pastes into a Markdown page."""
+    if not isinstance(v, str):
+        return v
+    return v.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;").replace("|", "\\|")
+
+
+def _markdown_safe(frame: pd.DataFrame) -> pd.DataFrame:
+    safe = frame.copy()
+    for c in safe.columns:
+        if safe[c].dtype == object or pd.api.types.is_string_dtype(safe[c]):
+            safe[c] = safe[c].map(_md_escape)
+    safe.columns = [_md_escape(str(c)) for c in safe.columns]
+    return safe
+
+
 def save_table(frame: pd.DataFrame, folder: Path, name: str, title: str) -> TableFile:
     out = TableFile(name, title, frame)
     stem = folder / name
@@ -79,8 +96,8 @@ def save_table(frame: pd.DataFrame, folder: Path, name: str, title: str) -> Tabl
     out.files = {"CSV": stem.with_suffix(".csv")}
     if len(frame) > TYPESET_ROWS:
         return out
-    md = frame.to_markdown(index=False) if len(frame.columns) else ""
-    atomic_write_text(stem.with_suffix(".md"), f"# {title}\n\n{md}\n")
+    md = _markdown_safe(frame).to_markdown(index=False) if len(frame.columns) else ""
+    atomic_write_text(stem.with_suffix(".md"), f"# {_md_escape(title)}\n\n{md}\n")
     latex = frame.to_latex(index=False, escape=True, na_rep="-", float_format=lambda x: f"{x:.6g}",
                            caption=title, label=f"tab:{name}", longtable=len(frame) > 40)
     atomic_write_text(stem.with_suffix(".tex"), latex)

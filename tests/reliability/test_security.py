@@ -496,6 +496,18 @@ def test_report_escapes_text_from_the_study(hostile_report) -> None:
     assert "&lt;script&gt;alert(" in html  # the title is shown, escaped
 
 
+def test_markdown_tables_escape_text_from_the_study(hostile_report) -> None:
+    """The Markdown exports are pasted into review pages: markup from the study file arrives as
+    escaped text there too (HTML escaping, common practice)."""
+    _, result = hostile_report
+    tables = sorted(Path(result.index).parent.rglob("*.md"))
+    assert tables
+    text = "\n".join(t.read_text() for t in tables)
+    for raw in ["<script>", "<b onmouseover", "<i>m</i>"]:
+        assert raw not in text, raw
+    assert "&lt;b onmouseover" in text  # the parameter value is kept, escaped
+
+
 @pytest.mark.xfail(strict=True, reason="the report's case table takes each case's status from its folder's step "
                                        "state, so a case whose output the collection refused (NaN) shows as done; "
                                        "telling a refused output from a stale table needs the report owner's choice")
