@@ -198,9 +198,35 @@ def load(root: str | Path) -> StudyData:
         histories=tables["histories"],
         cases_table=tables["cases"],
         uncertainty=tables["uncertainty"],
-        cases=scan_cases(root, settings.steps),
+        cases=_with_refusals(scan_cases(root, settings.steps), tables["cases"]),
         table_files=files,
     )
+
+
+def _with_refusals(cases: dict[str, CaseState], table: pd.DataFrame | None) -> dict[str, CaseState]:
+    """Cases whose steps all ended well but whose outputs the collection refused (NaN, missing key)
+    are failed, with the collection's reason, as long as that collection is not older than the
+    case's last step: a case rerun since then keeps its folder state until it is collected again."""
+    if table is None or not {"case", "status"} <= set(table.columns):
+        return cases
+    refused = table[table["status"].astype(str) == "failed"]
+    reasons = dict(zip(refused["case"].astype(str),
+                       refused["reason"].astype(str) if "reason" in refused else [""] * len(refused)))
+    for case_id, reason in reasons.items():
+        state = cases.get(case_id)
+        if state is None or state.status != "done":
+            continue
+        meta = state.folder / ".studyflow"
+        record = meta / "record.json"
+        steps = list(meta.glob("*.status.json"))
+        try:
+            current = record.stat().st_mtime >= max(p.stat().st_mtime for p in steps)
+        except (OSError, ValueError):
+            continue
+        if current:
+            state.status = "failed"
+            state.reason = f"collection: {reason}" if reason and reason != "nan" else "collection refused an output"
+    return cases
 
 
 def _clean(results: pd.DataFrame | None) -> pd.DataFrame | None:

@@ -508,9 +508,6 @@ def test_markdown_tables_escape_text_from_the_study(hostile_report) -> None:
     assert "&lt;b onmouseover" in text  # the parameter value is kept, escaped
 
 
-@pytest.mark.xfail(strict=True, reason="the report's case table takes each case's status from its folder's step "
-                                       "state, so a case whose output the collection refused (NaN) shows as done; "
-                                       "telling a refused output from a stale table needs the report owner's choice")
 def test_report_counts_a_refused_output_as_failed(hostile_report) -> None:
     root, result = hostile_report
     collected = api.results(root).cases.set_index("case")["status"].value_counts().to_dict()
