@@ -16,7 +16,7 @@ from .common import figure_legend, label, levels_count, new_figure
 def load_reference(ref: Reference, study_file: str) -> pd.DataFrame:
     """The reference curve as a two-column frame (x, y), sorted by x."""
     try:
-        table = pd.read_csv(ref.file)
+        table = pd.read_csv(ref.file, comment="#")  # reference files carry their source in # lines
     except Exception as exc:  # the csv parser raises several unrelated types
         raise InputError(Problem(str(ref.file), "", ref.file.name, f"cannot be read as CSV: {exc}")) from exc
     problems = [Problem(study_file, f"report.references.{ref.quantity}.{k}", col,
