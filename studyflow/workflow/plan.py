@@ -73,7 +73,8 @@ class Plan:
         return pd.DataFrame([s.__dict__ for s in self.steps], columns=["case", "step", "state", "reason"])
 
 
-def _case_plan(cases_dir: str, rc: RenderedCase, shas: dict[int, str]) -> list[StepPlan]:
+def _case_plan(cases_dir: str, rc: RenderedCase, shas: dict[int, str],
+               started: str = "interrupted (started, never finished)") -> list[StepPlan]:
     case_dir = os.path.join(cases_dir, rc.case.id)
     # Parameter and mesh hashes only name the reason of a stale step: computed when needed.
     case_doc: dict = {}
@@ -103,7 +104,7 @@ def _case_plan(cases_dir: str, rc: RenderedCase, shas: dict[int, str]) -> list[S
             elif status.get("state") == "failed":
                 state, reason = STALE, f"failed before ({status.get('reason')})"
             elif status.get("state") == "running":
-                state, reason = STALE, "interrupted (started, never finished)"
+                state, reason = STALE, started
             else:
                 state, reason = STALE, "done marker missing"
             out.append(StepPlan(rc.case.id, name, state, reason))
@@ -168,13 +169,14 @@ def _case_plan(cases_dir: str, rc: RenderedCase, shas: dict[int, str]) -> list[S
     return out
 
 
-def compute_plan(study: Study, rendered: list[RenderedCase], removed: tuple[str, ...] = ()) -> Plan:
+def compute_plan(study: Study, rendered: list[RenderedCase], removed: tuple[str, ...] = (),
+                 run_going: bool = False) -> Plan:
     """The plan for every rendered case (``render.render_all``), compared with what is on disk."""
     shas: dict[int, str] = {}
     steps: list[StepPlan] = []
     cases_dir = str(study.cases_dir)  # once: the property goes through pydantic and pathlib
     for rc in rendered:
-        steps += _case_plan(cases_dir, rc, shas)
+        steps += _case_plan(cases_dir, rc, shas, *(("running now",) if run_going else ()))
     return Plan(steps, removed, tuple(study.step_names()))
 
 

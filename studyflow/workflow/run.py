@@ -11,7 +11,7 @@ from ..errors import EXIT_CASES_FAILED, EXIT_INTERRUPTED, EXIT_OK, WorkflowError
 from ..render.cases import RenderResult, make_renderer, removed_cases, render_all, render_study
 from ..spec.model import Study
 from .driver import EngineOptions, EngineResult, log_tail, run_engine
-from .lock import RunLock
+from .lock import RunLock, holder
 from .plan import Plan, clear_stale_markers, compute_plan
 from .state import DONE, FAILED, CaseState, case_state
 
@@ -63,7 +63,9 @@ def plan_study(study: Study, design: Design | None = None, time_limit_s: float |
     """What a run would do now; renders in memory only, writes nothing."""
     design = design or build_design(study)
     rendered = render_all(study, design, make_renderer(study, time_limit_s))
-    return compute_plan(study, rendered, removed_cases(study, design))
+    # While another run holds the study, a step with a "running" status is running, not killed.
+    going = holder(study.state_dir) is not None
+    return compute_plan(study, rendered, removed_cases(study, design), run_going=going)
 
 
 def run_study(study: Study, design: Design | None = None, options: EngineOptions | None = None,
