@@ -111,7 +111,7 @@ class Assembly:
             mats.append(expr.matrix(rows, n, n))
             np.add.at(c, rows, expr.const)
         L = sum(mats[1:], mats[0]) if mats else sp.csr_matrix((n, n))
-        a_rows, b_rows, s_cols, s_rows, s_vals, a_c, b_c = [], [], [], [], [], [], []
+        s_cols, s_rows, s_vals, a_c, b_c = [], [], [], [], []
         offset = 0
         A_list, B_list = [], []
         for rows, f, g, sign in self.quad_parts:

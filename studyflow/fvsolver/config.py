@@ -184,7 +184,7 @@ def parse(data: dict, file: str = "<case>") -> CaseConfig:
         if extra["gradient_from"] >= extra["gradient_to"]:
             r.issues.append(Issue(file, "channel.gradient_to", extra["gradient_to"],
                                   "must be larger than channel.gradient_from"))
-    for name, n, s in (("nx", nx, sx), ("ny", ny, sy)):
+    for name, n in (("nx", nx), ("ny", ny)):
         two_sided = (kind in ("cavity", "mms") or (kind in ("channel", "step") and name == "ny"))
         if two_sided and isinstance(n, int) and n % 2:
             r.issues.append(Issue(file, f"mesh.{name}", n, f"must be even for the {kind} case"
