@@ -84,7 +84,7 @@ def error_vs_size(results: pd.DataFrame, uncertainty: pd.DataFrame | None, quant
     ax.set_ylabel(f"|{quantity} - {quantity}_ext|")
     anchor: tuple[float, float] | None = None
     drawn = 0
-    for i, point in enumerate(points):
+    for point in points:
         u = _unc_row(uncertainty, point)
         if u is None or not np.isfinite(float(u.get("extrapolated", np.nan))):
             continue
