@@ -10,7 +10,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from studyflow.collect import collect_case, collect_study, read_results, write_tables
+from studyflow.collect import collect_case, collect_study, read_results
 from studyflow.collect.tables import CASES_TAIL, HISTORY_COLUMNS, RESULT_TAIL
 from studyflow.errors import CollectError
 from collect_fakestudy import cases_of, good_outputs, make_study, write_case
