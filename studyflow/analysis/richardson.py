@@ -182,6 +182,14 @@ def _rel(num: NDArray, den: NDArray) -> NDArray:
         return np.where(den != 0, np.abs(num / np.where(den != 0, den, 1.0)), np.inf)
 
 
+def gci_relative(e_a: ArrayLike, r: ArrayLike, p: ArrayLike, fs: float) -> NDArray[np.float64]:
+    """Relative GCI, Fs e_a / (r^p - 1) with e_a = |(phi_fine - phi_coarse)/phi_fine| (Celik et al.
+    2008, Eq. (5c), numbering from memory); r^p - 1 through expm1 to keep precision for small p."""
+    e_a, r, p = map(_f, (e_a, r, p))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return fs * e_a / np.expm1(p * np.log(r))
+
+
 def gci_absolute(phi_fine: ArrayLike, phi_coarse: ArrayLike, r: ArrayLike, p: ArrayLike, fs: float) -> NDArray[np.float64]:
     """Absolute GCI, Fs |phi_coarse - phi_fine| / (r^p - 1): the relative GCI of Celik et al.
     (2008), Eq. (5c) as we recall the numbering, times |phi_fine|, computed directly so it stays
@@ -263,9 +271,7 @@ def three_level(
     ext32 = richardson_extrapolate(phi2, phi3, r32, p)
     e_a, e_a32 = _rel(eps21, phi1), _rel(eps32, phi2)
     e_ext = _rel(ext21 - phi1, ext21)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        gci_fine = fs * e_a / np.expm1(p * np.log(r21))
-        gci_medium = fs * e_a32 / np.expm1(p * np.log(r32))
+    gci_fine, gci_medium = gci_relative(e_a, r21, p, fs), gci_relative(e_a32, r32, p, fs)
     return ThreeLevel(
         h1=hs[:, 0], phi1=phi1, r21=r21, r32=r32, eps21=eps21, eps32=eps32, convergence=conv,
         order=p, iterations=ao.iterations, extrapolated=ext21, extrapolated32=ext32,
@@ -316,8 +322,7 @@ def two_level(
     flat = np.abs(eps21) <= noise_threshold(o.phi[:, :2], noise, rtol)
     ext = richardson_extrapolate(phi1, phi2, r21, p)
     e_a = _rel(eps21, phi1)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        gci = fs * e_a / np.expm1(p * np.log(r21))
+    gci = gci_relative(e_a, r21, p, fs)
     return TwoLevel(
         h1=h1, phi1=phi1, r21=r21, eps21=eps21, flat=flat, extrapolated=ext, e_a=e_a,
         e_ext=_rel(ext - phi1, ext), gci_fine=gci, U=gci_absolute(phi1, phi2, r21, p, fs),

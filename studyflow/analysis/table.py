@@ -24,6 +24,7 @@ from .richardson import (
     FS_THREE_LEVEL,
     FS_TWO_LEVEL,
     asymptotic_ratio,
+    gci_relative,
     noise_threshold,
     three_level,
     two_level,
@@ -298,9 +299,9 @@ def assess(
                 out["sigma"][ix], out["data_range"][ix], out["good_fit"][ix] = ls.sigma, ls.data_range, ls.good_fit
                 # Roache's check on the three finest levels with the order of the fit over all levels:
                 # informative here, unlike with the order observed on those same three levels.
-                with np.errstate(divide="ignore", invalid="ignore"):
-                    g21 = t3.e_a / np.expm1(ls.order * np.log(t3.r21))
-                    g32 = t3.e_a32 / np.expm1(ls.order * np.log(t3.r32))
+                # Fs cancels in the ratio
+                g21 = gci_relative(t3.e_a, t3.r21, ls.order, 1.0)
+                g32 = gci_relative(t3.e_a32, t3.r32, ls.order, 1.0)
                 out["asymptotic_ratio"][ix] = asymptotic_ratio(g21, g32, t3.r21, ls.order)
             else:
                 indet = t3.convergence.kind == "indeterminate"
