@@ -15,21 +15,14 @@ from typing import Any
 import pandas as pd
 
 from ..collect import read_results
+from ..collect.tables import CASE_COLUMNS, RESULT_TAIL
 from ..errors import InputError, Problem, StudyflowError
 from .settings import ReportSettings, load_settings
 
 # Columns of the tidy results table that are not parameters (DEVELOPERS.md, "Tidy tables").
-RESULT_FIXED = [
-    "study", "case", "point", "level", "cells", "h", "quantity", "kind", "coord", "value", "unit",
-    "status", "converged", "reason",
-]
+RESULT_FIXED = [*CASE_COLUMNS, *RESULT_TAIL]
 TEXT_COLUMNS = ("study", "case", "point", "quantity", "kind", "unit", "status", "reason", "verdict", "method",
                 "convergence")
-UNCERTAINTY_FIXED = [
-    "point", "quantity", "coord", "levels", "h_fine", "value_fine", "order", "extrapolated", "e_a",
-    "e_ext", "gci_fine", "gci_medium", "asymptotic_ratio", "convergence", "R", "method", "U", "u_num",
-    "iterative_error", "iterative_ok", "verdict", "reason",
-]
 
 
 @dataclass
