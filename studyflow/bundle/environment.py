@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import importlib.metadata as md
+import json
 import os
 import platform
 import re
@@ -17,9 +18,12 @@ import subprocess
 import sys
 import tempfile
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any
 
 import studyflow
+
+from .manifest import ENVIRONMENT_NAME
 
 # the packages whose versions most affect numbers or case rendering; all others are kept too
 KEY_PACKAGES = ("studyflow", "numpy", "scipy", "pandas", "pyarrow", "jinja2", "pydantic", "pyyaml",
@@ -144,6 +148,16 @@ def capture(solver_commands: list[str] | dict[str, str | None], command_lines: l
         "command_lines": command_lines or [],
         "run_dates": run_dates or {},
     }
+
+
+def read_record(root: Path) -> dict[str, Any]:
+    """The bundle's ``environment.json`` as packed; empty when it is missing or unreadable (the
+    integrity check reports a missing or altered file, so nothing is lost by reading on)."""
+    try:
+        data = json.loads((root / ENVIRONMENT_NAME).read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return {}
+    return data if isinstance(data, dict) else {}
 
 
 def compare(shipped: dict[str, Any], solvers_now: dict[str, SolverVersion]) -> list[dict[str, Any]]:

@@ -321,13 +321,9 @@ def rerun(root: Path, manifest: Manifest, scratch: Path, cases: list[str], setti
             reasons = dict(zip(cases, pool.map(lambda c: _run_case(study.cases_dir / c, steps, timeout_s), cases)))
 
     # programs shipped with the study (a path, not a name on PATH) are asked for their version here
-    shipped_env = {}
-    try:
-        shipped_env = json.loads((root / "environment.json").read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        pass
     from . import environment as env
 
+    shipped_env = env.read_record(root)
     for command, then in sorted((shipped_env.get("solvers") or {}).items()):
         if "/" in command and cases:
             now = env.probe_solver(command, cwd=str(study.cases_dir / cases[0]))

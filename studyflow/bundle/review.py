@@ -10,7 +10,6 @@ quantity is outside its tolerance or the uncertainty table does not re-compute, 
 
 from __future__ import annotations
 
-import json
 import random
 import shutil
 import tempfile
@@ -23,7 +22,7 @@ import studyflow
 from ..errors import EXIT_AUDIT_FAILED, EXIT_OK, AuditError, StudyflowError
 from ..fsutil import sha256_file
 from . import environment as env
-from .manifest import ENVIRONMENT_NAME, MANIFEST_NAME, Manifest, verify_tree
+from .manifest import MANIFEST_NAME, Manifest, verify_tree
 from .unpack import safe_extract
 
 CAUTION = ("An audit checks that the bundle is intact and reproducible, not that its results are right: "
@@ -125,14 +124,6 @@ def find_root(folder: Path) -> Path:
     raise AuditError(f"{folder}: several bundles inside ({', '.join(p.name for p in candidates)}); give one")
 
 
-def _load_env(root: Path) -> dict[str, Any]:
-    try:
-        data = json.loads((root / ENVIRONMENT_NAME).read_text(encoding="utf-8"))
-        return data if isinstance(data, dict) else {}
-    except (OSError, ValueError):
-        return {}
-
-
 def _integrity(root: Path, manifest: Manifest, report: AuditReport) -> None:
     ph = report.phases["integrity"] = Phase("integrity", ran=True)
     res = verify_tree(root, manifest)
@@ -206,7 +197,7 @@ def audit(source: str | Path, *, into: str | Path | None = None, rerun: RerunCho
         # the one check a forger who rewrote files and manifest together cannot pass
         report.failures.append(f"manifest digest {report.manifest_sha256} is not the expected "
                                f"{manifest_sha256.strip().lower()}: the manifest itself was changed")
-    shipped_env = _load_env(root)
+    shipped_env = env.read_record(root)
 
     _integrity(root, manifest, report)
     _environment(root, shipped_env, report)
