@@ -19,9 +19,19 @@ from typing import Any
 
 import numpy as np
 
-from ..errors import UnsafePathError
-from .caseinfo import STATE_DIR, CaseInfo, StudyInfo, case_dir, case_state, inside, read_case_json, study_info
 from ..design import h_from_cells, mesh_dim
+from ..errors import UnsafePathError
+from .caseinfo import (
+    STATE_DIR,
+    CaseInfo,
+    StudyInfo,
+    case_dir,
+    case_state,
+    design_cases,
+    inside,
+    read_case_json,
+    study_info,
+)
 from .check import Bound, check_quantities
 from .values import QuantityResult, ReadFailure, Reading
 
@@ -161,10 +171,10 @@ def judge_converged(iteration: Any, results: Mapping[str, QuantityResult]) -> bo
     residuals = list(getattr(iteration, "residuals", None) or [])
     if not residuals:
         return None
+    tol_for = getattr(iteration, "tolerance_for", None)
     ok = True
     for name in residuals:
         q = results.get(name)
-        tol_for = getattr(iteration, "tolerance_for", None)
         tol = tol_for(name) if callable(tol_for) else getattr(iteration, "tolerance", None)
         if q is None or q.status != "ok" or q.reading is None or tol is None:
             return None
@@ -331,8 +341,6 @@ def collect_case(study: Any, case: str | CaseInfo, *, write: bool = True) -> Cas
     if isinstance(case, str):
         found = read_case_json(info, case)
         if found is None:  # not rendered yet: the design still knows its point and level
-            from .caseinfo import design_cases  # noqa: PLC0415
-
             found = next((c for c in design_cases(info, study) if c.case == case), None)
         case = found if found is not None else CaseInfo(case)
     return collect_one(info, bound, case, write=write)
