@@ -94,6 +94,11 @@ def _read_json(path: Path) -> dict[str, Any]:
     return data if isinstance(data, dict) else {}
 
 
+def _state_of(status: dict[str, Any]) -> str:
+    # The step runner writes "state"; "status" is accepted for files written by other tools.
+    return str(status.get("state", status.get("status", ""))).lower()
+
+
 def scan_cases(root: Path, steps: list[str]) -> dict[str, CaseState]:
     """State of every rendered case from its ``.studyflow`` folder.
 
@@ -118,14 +123,10 @@ def scan_cases(root: Path, steps: list[str]) -> dict[str, CaseState]:
         )
         statuses = {p.name.removesuffix(".status.json"): _read_json(p)
                     for p in sorted(meta.parent.glob("*.status.json"))}
-        def state_of(d: dict[str, Any]) -> str:
-            # The step runner writes "state"; "status" is accepted for files written by other tools.
-            return str(d.get("state", d.get("status", ""))).lower()
-
-        failed = [(s, d) for s, d in statuses.items() if state_of(d) == "failed"]
+        failed = [(s, d) for s, d in statuses.items() if _state_of(d) == "failed"]
         wanted = steps or list(statuses)
-        ok = [s for s in wanted if state_of(statuses.get(s, {})) == "ok"]
-        running = [s for s, d in statuses.items() if state_of(d) == "running"]
+        ok = [s for s in wanted if _state_of(statuses.get(s, {})) == "ok"]
+        running = [s for s, d in statuses.items() if _state_of(d) == "running"]
         if failed:
             state.status = "failed"
             step, detail = failed[0]
