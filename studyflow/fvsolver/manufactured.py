@@ -20,22 +20,22 @@ C = 0.1
 PI = np.pi
 
 
+def _factor(t: np.ndarray, k: float) -> tuple[np.ndarray, ...]:
+    """f = (k + t) sin(pi t) and its first three derivatives (product rule)."""
+    s, c = np.sin(PI * t), np.cos(PI * t)
+    f0 = (k + t) * s
+    f1 = s + PI * (k + t) * c
+    f2 = 2 * PI * c - PI**2 * (k + t) * s
+    f3 = -3 * PI**2 * s - PI**3 * (k + t) * c
+    return f0, f1, f2, f3
+
+
 def _a(x: np.ndarray) -> tuple[np.ndarray, ...]:
-    s, c = np.sin(PI * x), np.cos(PI * x)
-    a0 = (1 + x) * s
-    a1 = s + PI * (1 + x) * c
-    a2 = 2 * PI * c - PI**2 * (1 + x) * s
-    a3 = -3 * PI**2 * s - PI**3 * (1 + x) * c
-    return a0, a1, a2, a3
+    return _factor(x, 1.0)
 
 
 def _b(y: np.ndarray) -> tuple[np.ndarray, ...]:
-    s, c = np.sin(PI * y), np.cos(PI * y)
-    b0 = (2 + y) * s
-    b1 = s + PI * (2 + y) * c
-    b2 = 2 * PI * c - PI**2 * (2 + y) * s
-    b3 = -3 * PI**2 * s - PI**3 * (2 + y) * c
-    return b0, b1, b2, b3
+    return _factor(y, 2.0)
 
 
 def velocity(x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
