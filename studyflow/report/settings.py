@@ -29,6 +29,7 @@ import yaml
 from ..analysis import Settings as AnalysisSettings
 from ..errors import InputError, Problem
 from ..fsutil import sha256_file
+from ..spec.yamlsource import load_yaml_text
 
 STUDY_FILE = "study.yaml"
 
@@ -85,7 +86,8 @@ def load_settings(root: Path) -> ReportSettings:
     if not path.is_file():
         return ReportSettings(study_file=None, title=root.name)
     try:
-        doc = yaml.safe_load(path.read_text(encoding="utf-8")) or {}
+        # the study loader's number rules, so 2e3 is a number here too (PyYAML alone reads a string)
+        doc = load_yaml_text(path.read_text(encoding="utf-8")) or {}
     except yaml.YAMLError as exc:
         raise InputError(Problem(str(path), "", STUDY_FILE, f"is not valid YAML: {exc}")) from exc
     if not isinstance(doc, dict):
