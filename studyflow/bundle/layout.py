@@ -59,8 +59,11 @@ class StudyLayout:
 
 
 def read_raw(study_file: Path) -> dict[str, Any]:
+    # the study loader's YAML 1.2 number rules; imported here, as the packer loads the study anyway
+    from ..spec.yamlsource import load_yaml_text
+
     try:
-        data = yaml.safe_load(study_file.read_text(encoding="utf-8"))
+        data = load_yaml_text(study_file.read_text(encoding="utf-8"))
     except FileNotFoundError as exc:
         raise InputError(Problem(str(study_file), "", str(study_file), "study file not found")) from exc
     except yaml.YAMLError as exc:

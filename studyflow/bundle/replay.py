@@ -37,8 +37,10 @@ def _study_paths(root: Path, manifest: Manifest) -> tuple[Path, Path]:
 
 def audit_settings(study_file: Path) -> AuditSettings:
     """The study's ``audit:`` tolerances (defaults when the block is absent)."""
+    from ..spec.yamlsource import load_yaml_text  # the study loader's number rules
+
     try:
-        raw = yaml.safe_load(study_file.read_text(encoding="utf-8")) or {}
+        raw = load_yaml_text(study_file.read_text(encoding="utf-8")) or {}
     except (OSError, yaml.YAMLError):
         raw = {}
     return settings_from(raw.get("audit") if isinstance(raw, dict) else None, str(study_file))
