@@ -76,10 +76,7 @@ def _notices(data: StudyData, counts: Counter, total: int) -> list[str]:
         out.append("No results have been collected yet: collect the study's outputs to see its quantities.")
     elif data.uncertainty is None and data.results is not None:
         out.append("No analysis table yet: the extrapolated values and uncertainties are missing.")
-    stamps = []
-    for c in data.cases.values():
-        if c.folder is not None:
-            stamps += [p.stat().st_mtime for p in (c.folder / ".studyflow").glob("*.status.json")]
+    stamps = [c.status_mtime for c in data.cases.values() if c.status_mtime is not None]
     res = data.table_files.get("results")
     if res is not None and stamps and max(stamps) > res.stat().st_mtime + 1.0:
         out.append("Some cases finished after the results were collected: collect again to include them.")

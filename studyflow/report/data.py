@@ -41,6 +41,7 @@ class CaseState:
     ended: str | None = None
     hosts: tuple[str, ...] = ()
     folder: Path | None = None
+    status_mtime: float | None = None  # newest step status file, stat'ed once in the scan
 
 
 @dataclass
@@ -121,8 +122,9 @@ def scan_cases(root: Path, steps: list[str]) -> dict[str, CaseState]:
             h=_as_float(info.get("h", mesh.get("h"))),
             folder=folder,
         )
-        statuses = {p.name.removesuffix(".status.json"): _read_json(p)
-                    for p in sorted(meta.parent.glob("*.status.json"))}
+        status_files = sorted(meta.parent.glob("*.status.json"))
+        statuses = {p.name.removesuffix(".status.json"): _read_json(p) for p in status_files}
+        state.status_mtime = _newest_mtime(status_files)
         failed = [(s, d) for s, d in statuses.items() if _state_of(d) == "failed"]
         wanted = steps or list(statuses)
         ok = [s for s in wanted if _state_of(statuses.get(s, {})) == "ok"]
@@ -145,6 +147,13 @@ def scan_cases(root: Path, steps: list[str]) -> dict[str, CaseState]:
         state.ended = ends[-1] if ends else None
         out[state.case] = state
     return out
+
+
+def _newest_mtime(paths: list[Path]) -> float | None:
+    try:
+        return max(p.stat().st_mtime for p in paths) if paths else None
+    except OSError:
+        return None
 
 
 def _as_int(value: Any) -> int | None:
@@ -210,12 +219,11 @@ def _with_refusals(cases: dict[str, CaseState], table: pd.DataFrame | None) -> d
         state = cases.get(case_id)
         if state is None or state.status != "done":
             continue
-        meta = state.folder / ".studyflow"
-        record = meta / "record.json"
-        steps = list(meta.glob("*.status.json"))
+        if state.status_mtime is None:
+            continue
         try:
-            current = record.stat().st_mtime >= max(p.stat().st_mtime for p in steps)
-        except (OSError, ValueError):
+            current = (state.folder / ".studyflow" / "record.json").stat().st_mtime >= state.status_mtime
+        except OSError:
             continue
         if current:
             state.status = "failed"
