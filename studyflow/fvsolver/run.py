@@ -48,6 +48,12 @@ def _solve_one(cfg: CaseConfig, start, log, label) -> tuple[Problem, Outcome]:
     return prob, out
 
 
+def _stage(cfg: CaseConfig, out: Outcome) -> dict:
+    """One entry of ``metrics.json``'s ``sequence``: a mesh (and Reynolds number) solved on the way."""
+    return {"nx": cfg.nx, "ny": cfg.ny, "reynolds": cfg.reynolds, "iterations": out.iterations,
+            "factorisations": out.factorisations, "status": out.status}
+
+
 def solve(cfg: CaseConfig, log: Callable[[str], None] = print) -> Result:
     """Solve the case, first on coarser meshes when ``coarse_levels`` asks for it."""
     t0 = time.perf_counter()
@@ -72,13 +78,11 @@ def solve(cfg: CaseConfig, log: Callable[[str], None] = print) -> Result:
             for re_k in cfg.ramp:  # continuation in Reynolds number on the coarsest mesh
                 ck = dataclasses.replace(c, reynolds=re_k, tolerance=max(cfg.tolerance, 1e-5), update_tolerance=0.0)
                 pk, ok = _solve_one(ck, start, log, f"[{c.nx}x{c.ny} Re {re_k:g}] ")
-                sequence.append({"nx": c.nx, "ny": c.ny, "reynolds": re_k, "iterations": ok.iterations,
-                                 "factorisations": ok.factorisations, "status": ok.status})
+                sequence.append(_stage(ck, ok))
                 if ok.status in ("converged", "not_converged"):
                     start = (pk.grid, Layout(pk.grid.nx, pk.grid.ny).split(ok.x))
         prob, out = _solve_one(c, start, log, label)
-        sequence.append({"nx": c.nx, "ny": c.ny, "reynolds": c.reynolds, "iterations": out.iterations,
-                         "factorisations": out.factorisations, "status": out.status})
+        sequence.append(_stage(c, out))
         if out.status in ("diverged", "singular") and not last:
             log(f"{label}coarse start failed ({out.message}); starting the next mesh from the default field")
             start = None
@@ -122,7 +126,6 @@ def write(result: Result, folder: Path) -> list[Path]:
         f = folder / cfg.fields
         output.write_fields(f, result.problem, u, v, p, shear)
         written.append(f)
-    result.metrics["wall_time_s"] = result.wall_time
     m = folder / cfg.metrics
     output.write_json(m, result.metrics)
     written.append(m)
