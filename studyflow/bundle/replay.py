@@ -199,10 +199,7 @@ def recompute_uncertainty(root: Path, manifest: Manifest, scratch: Path,
     shipped, shipped_path = _read_table(results_dir, "uncertainty")
     if shipped is None:
         return UncertaintyOutcome(False, True, "no uncertainty table in the bundle")
-    try:
-        from ..analysis import assess  # type: ignore[attr-defined]
-    except ImportError as exc:
-        raise AuditError("this studyflow has no analysis to re-compute the uncertainty table with") from exc
+    from ..analysis import assess
     from ..collect import read_results
 
     if (manifest.template or {}).get("absolute") and (scratch / manifest.study_file).is_file():
