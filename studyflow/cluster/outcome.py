@@ -7,7 +7,8 @@ batch job died first, or sbatch refused it) has no status of this run, or one sa
 812 TIMEOUT (the batch job's wall-time limit was reached); scheduler log .snakemake/...``, so
 ``studyflow status`` and the results table (``status``/``reason`` columns, read from the status
 files) show it. A failure the step runner recorded itself (exit code, time-out of the solver,
-missing output) is left as it is: it is the more precise reason.
+missing output) is left as it is: it is the more precise reason, except a step the runner saw
+killed by a signal, which gets the job's reason with the runner's words after it.
 
 Which case ran in which scheduler job is read from the Snakemake log of the run: each failed
 job is reported there with its outputs (the steps' done markers) and its scheduler log, whose
@@ -202,6 +203,13 @@ def _own_result(status: dict | None, started_at: float) -> bool:
     return status.get("state") == "failed" and status.get("reason") != "interrupted"
 
 
+def _killed_by_signal(status: dict) -> bool:
+    """The step runner recorded its process as ended by a signal (negative exit code), which on a
+    cluster is usually the scheduler cancelling or timing out the job."""
+    code = status.get("exit_code")
+    return status.get("state") == "failed" and isinstance(code, int) and code < 0
+
+
 def record_job_failures(study: Study, cases: Sequence[str], log_text: str, started_at: float) -> dict[str, str]:
     """Give each step a failed scheduler job took down the job's reason; returns case -> reason."""
     wanted = set(cases)
@@ -217,16 +225,21 @@ def record_job_failures(study: Study, cases: Sequence[str], log_text: str, start
             d = str(study.cases_dir / case)
             path = sig.status_path(d, step)
             status = sig.read_json(path)
-            if _own_result(status, started_at):
+            key = job.job_id or str(id(job))
+            killed = _own_result(status, started_at) and _killed_by_signal(status)
+            if _own_result(status, started_at) and not killed:
                 if status.get("state") == "failed":
                     written[case] = status.get("reason") or ""
                 continue
-            key = job.job_id or str(id(job))
             if key not in reasons:  # one scheduler query per job, however many cases it held
                 reasons[key] = job_reason(job, study.root)
+            reason = reasons[key]
+            if killed:
+                # The runner saw only the signal; the scheduler knows why it was sent.
+                reason = f"{reason}; the step was {status.get('reason')}"
             now = datetime.now(UTC).isoformat(timespec="seconds")
             doc = dict(status or {})
-            doc.update({"case": case, "step": step, "state": "failed", "reason": reasons[key],
+            doc.update({"case": case, "step": step, "state": "failed", "reason": reason,
                         "exit_code": (status or {}).get("exit_code"), "ended": now,
                         "started": (status or {}).get("started") or now,
                         "started_at": (status or {}).get("started_at") or started_at,
@@ -234,7 +247,7 @@ def record_job_failures(study: Study, cases: Sequence[str], log_text: str, start
                         "cluster_job": job.job_id})
             os.makedirs(os.path.dirname(path), exist_ok=True)
             sig.write_json_atomic(path, doc)
-            written[case] = reasons[key]
+            written[case] = reason
     return written
 
 
