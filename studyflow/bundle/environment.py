@@ -81,8 +81,18 @@ class SolverVersion:
         return dict(self.__dict__)
 
     @property
+    def shown(self) -> str | None:
+        """What a version note compares: the version token, else the line printed."""
+        return self.version or self.output
+
+    @property
     def label(self) -> str:
-        return self.version or self.output or f"unknown ({self.error})"
+        return self.shown or f"unknown ({self.error})"
+
+
+def recorded_version(record: dict[str, Any] | None) -> str | None:
+    """``SolverVersion.shown`` of a solver as ``environment.json`` recorded it."""
+    return (record or {}).get("version") or (record or {}).get("output")
 
 
 def probe_solver(command: str, cwd: str | None = None, timeout: float = 5.0) -> SolverVersion:
@@ -164,9 +174,8 @@ def compare(shipped: dict[str, Any], solvers_now: dict[str, SolverVersion]) -> l
     """Differences between the packed environment and this one that may change numbers."""
     notes: list[dict[str, Any]] = []
     for command, now in sorted(solvers_now.items()):
-        then = (shipped.get("solvers") or {}).get(command) or {}
-        before = then.get("version") or then.get("output")
-        after = now.version or now.output
+        before = recorded_version((shipped.get("solvers") or {}).get(command))
+        after = now.shown
         if now.resolved is None:
             notes.append({"what": "solver not found", "name": command, "packed": before, "now": None,
                           "error_now": now.error})

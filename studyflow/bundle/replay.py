@@ -326,7 +326,7 @@ def rerun(root: Path, manifest: Manifest, scratch: Path, cases: list[str], setti
     for command, then in sorted((shipped_env.get("solvers") or {}).items()):
         if "/" in command and cases:
             now = env.probe_solver(command, cwd=str(study.cases_dir / cases[0]))
-            before, after = (then or {}).get("version") or (then or {}).get("output"), now.version or now.output
+            before, after = env.recorded_version(then), now.shown
             if before != after:
                 out.notes.append({"what": "solver version", "name": command, "packed": before, "now": after,
                                   "error_now": now.error})

@@ -152,7 +152,7 @@ def _environment(root: Path, shipped_env: dict[str, Any], report: AuditReport) -
                             "platform": (shipped_env.get("platform") or {}).get("platform"),
                             "packed": shipped_env.get("packed"),
                             "studyflow": shipped_env.get("studyflow_version"),
-                            "solvers": {k: (v or {}).get("version") or (v or {}).get("output")
+                            "solvers": {k: env.recorded_version(v)
                                         for k, v in (shipped_env.get("solvers") or {}).items()}},
                  "now": {k: v.to_json() for k, v in now.items()},
                  "command_lines": shipped_env.get("command_lines") or []}
