@@ -44,6 +44,11 @@ def fmt(value: object, digits: int = 4) -> str:
     return f"{x:.{digits}g}"
 
 
+def done_rows(results: pd.DataFrame, quantity: str) -> pd.DataFrame:
+    """The rows of ``quantity`` from finished cases: the only ones a figure draws."""
+    return results[(results["quantity"] == quantity) & (results["status"] == "done")]
+
+
 def size_axis(rows: pd.DataFrame) -> tuple[str, np.ndarray]:
     """The mesh-size coordinate to plot: ``h`` when known, else the cell count."""
     h = pd.to_numeric(rows.get("h"), errors="coerce") if "h" in rows else None

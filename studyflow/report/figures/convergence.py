@@ -9,7 +9,7 @@ from matplotlib.figure import Figure
 
 from .. import style
 from ..settings import Reference
-from .common import figure_legend, fmt, label, levels_count, new_figure, size_axis
+from .common import done_rows, figure_legend, fmt, label, levels_count, new_figure, size_axis
 
 
 def _unc_row(unc: pd.DataFrame | None, point: str) -> pd.Series | None:
@@ -23,7 +23,7 @@ def value_vs_size(results: pd.DataFrame, uncertainty: pd.DataFrame | None, quant
                   unit: str | None, points: list[str], reference: Reference | None = None) -> Figure:
     """One panel per point: the value on each mesh level against mesh size, the extrapolated value at
     h = 0, the band value_fine +- U from the analysis table, and a reference value when one is named."""
-    done = results[(results["quantity"] == quantity) & (results["status"] == "done")]
+    done = done_rows(results, quantity)
     nlev = levels_count(results)
     fig, axes = new_figure(len(points), ncols=min(3, len(points)))
     for ax, point in zip(axes, points):
@@ -78,7 +78,7 @@ def error_vs_size(results: pd.DataFrame, uncertainty: pd.DataFrame | None, quant
     in the table says why.
     """
     fig, (ax,) = new_figure(1, ncols=1, panel_size=(5.4, 3.8))
-    done = results[(results["quantity"] == quantity) & (results["status"] == "done")]
+    done = done_rows(results, quantity)
     ax.set_title(f"{quantity}: discretisation error", loc="left")
     ax.set_xlabel("mesh size h")
     ax.set_ylabel(f"|{quantity} - {quantity}_ext|")

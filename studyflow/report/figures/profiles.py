@@ -10,7 +10,7 @@ from matplotlib.figure import Figure
 from ...errors import InputError, Problem
 from .. import style
 from ..settings import Reference
-from .common import figure_legend, label, levels_count, new_figure
+from .common import done_rows, figure_legend, label, levels_count, new_figure
 
 
 def load_reference(ref: Reference, study_file: str) -> pd.DataFrame:
@@ -32,7 +32,7 @@ def load_reference(ref: Reference, study_file: str) -> pd.DataFrame:
 def profile_panels(results: pd.DataFrame, uncertainty: pd.DataFrame | None, quantity: str,
                    unit: str | None, points: list[str], reference: pd.DataFrame | None = None,
                    reference_label: str = "reference", reference_point: str | None = None) -> Figure:
-    done = results[(results["quantity"] == quantity) & (results["status"] == "done")]
+    done = done_rows(results, quantity)
     nlev = levels_count(results)
     fig, axes = new_figure(len(points), ncols=min(2, len(points)), panel_size=(4.4, 3.0))
     for ax, point in zip(axes, points):
