@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import math
 import re
 from typing import Any
 
@@ -53,7 +52,3 @@ def to_numbers(raw: Any, key: str) -> list[float]:
     if not isinstance(raw, (list, tuple)):
         raise ReadFailure(f"expected a list of numbers, found {type(raw).__name__}", key, raw)
     return [to_number(v, f"{key}[{i}]") for i, v in enumerate(raw)]
-
-
-def is_finite(value: float) -> bool:
-    return math.isfinite(value)
