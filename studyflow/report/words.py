@@ -6,6 +6,7 @@ import math
 
 import pandas as pd
 
+from ..analysis import verdict as vd
 from .figures.common import fmt
 
 
@@ -47,17 +48,17 @@ def sentence(row: pd.Series, unit: str | None, formal_order: float | None) -> st
     return text[0].upper() + text[1:]
 
 
-# The analysis layer's verdict words (studyflow.analysis.verdict) and how the report colours them.
+# The analysis layer's verdict words and how the report colours them.
 VERDICT_CLASS = {
-    "in the asymptotic range": "good",
-    "no discernible mesh dependence": "good",
-    "order assumed: two levels only": "warn",
-    "indeterminate": "warn",
-    "not yet asymptotic: refine further": "warn",
-    "observed order below formal": "warn",
-    "oscillatory": "warn",
-    "diverging": "bad",
-    "cannot assess": "bad",
+    vd.ASYMPTOTIC: "good",
+    vd.FLAT: "good",
+    vd.TWO: "warn",
+    vd.INDETERMINATE: "warn",
+    vd.NOT_ASYMPTOTIC: "warn",
+    vd.BELOW_FORMAL: "warn",
+    vd.OSCILLATORY: "warn",
+    vd.DIVERGING: "bad",
+    vd.CANNOT: "bad",
 }
 
 
