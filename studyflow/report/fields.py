@@ -66,7 +66,12 @@ def read_mesh(path: Path):
     import meshio
 
     with contextlib.redirect_stdout(io.StringIO()):  # meshio's gmsh reader prints blank lines
-        return meshio.read(str(path))
+        try:
+            return meshio.read(str(path))
+        except SystemExit:
+            # meshio.read ends the process on a damaged file; here it costs one picture, not the report
+            raise ValueError(f"{path}: meshio cannot read it as {path.suffix or 'a mesh'} "
+                             "(damaged or incomplete file)") from None
 
 
 def choose_arrays(mesh) -> list[tuple[str, str]]:

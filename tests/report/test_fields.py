@@ -87,3 +87,16 @@ def test_xdmf_fields_are_drawn_through_meshio(tmp_path):
     if "OpenGL" in status[job.png] or "crashed" in status[job.png]:
         pytest.skip(f"no off-screen OpenGL on this machine: {status[job.png]}")
     assert status[job.png] == "ok" and job.png.stat().st_size > 1000
+
+
+def test_a_damaged_field_file_costs_its_pictures_not_the_report(tmp_path):
+    # meshio.read ends the process (sys.exit) when it cannot parse a file (meshio 5, _helpers._read_file);
+    # the report must say so and still be written.
+    root = write_study(tmp_path / "s", res=[1.0e4], angles=[0.0], failed=False, pending=False)
+    damaged = sorted((root / "cases").glob("*/fields.vtu"))
+    for path in damaged:
+        path.write_text('<VTKFile type="UnstructuredGrid"><truncated', encoding="utf-8")
+    result = build_report(root)
+    assert damaged and result.index.is_file()
+    assert not [f for f in result.figures if f.name.startswith("field-")]
+    assert "The field file fields.vtu of" in result.index.read_text()  # the note saying it could not be read
