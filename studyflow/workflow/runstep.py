@@ -265,7 +265,8 @@ def _run(case_dir: str, step: str) -> int:
                 reason = f"killed by signal {named.Signals(-code).name}"
             except ValueError:
                 pass
-        return finish("failed", reason, code, EXIT_FAILED)
+        said = _last_words(os.path.join(case_dir, "logs", f"{step}.log"))
+        return finish("failed", f"{reason}: {said}" if said else reason, code, EXIT_FAILED)
     for rel in doc.get("writes", []):
         if not os.path.exists(os.path.join(case_dir, rel)):
             return finish("failed", f"missing output {rel}", 0, EXIT_FAILED)
@@ -279,6 +280,22 @@ def _run(case_dir: str, step: str) -> int:
     rc = finish("ok", None, 0, 0)
     sig.write_json_atomic(marker, done)
     return rc
+
+
+def _last_words(log: str, tail: int = 4096, limit: int = 200) -> str:
+    """The last non-empty line the program printed (a mesher's or solver's own error message),
+    so the failure reason in status and the results table says why, not only the exit code."""
+    try:
+        with open(log, "rb") as fh:
+            fh.seek(max(0, os.fstat(fh.fileno()).st_size - tail))
+            lines = fh.read().decode("utf-8", "replace").splitlines()
+    except OSError:
+        return ""
+    for line in reversed(lines):
+        line = line.strip()
+        if line:
+            return line if len(line) <= limit else line[: limit - 3] + "..."
+    return ""
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -33,13 +33,13 @@ def test_failed_step_leaves_a_failure_marker_and_exits_zero(tmp_path):
     marker = json.loads((bad / ".studyflow" / "solve.done").read_text())
     assert marker["failed"] is True and marker["signature"] is None
     status = json.loads((bad / ".studyflow" / "solve.status.json").read_text())
-    assert (status["state"], status["reason"], status["exit_code"]) == ("failed", "exit code 3", 3)
+    assert (status["state"], status["reason"], status["exit_code"]) == ("failed", "exit code 3: negative input -1", 3)
     # The case state and the plan read the failure marker as "not done".
     assert case_state(bad, ["solve"]).status == "failed"
     assert case_state(good, ["solve"]).status == "done"
     plan = api.plan(study)
     assert plan.cases_to_run() == ["x-1--m0"]
-    assert plan.case_reason("x-1--m0") == "solve: failed before (exit code 3)"
+    assert plan.case_reason("x-1--m0") == "solve: failed before (exit code 3: negative input -1)"
 
     assert clear_failure_markers(study, ["x-1--m0", "x2--m0"]) == 1
     assert not (bad / ".studyflow" / "solve.done").exists()
@@ -55,7 +55,7 @@ def test_step_after_a_failed_step_is_not_run(tmp_path):
     assert (status["state"], status["reason"]) == ("failed", "upstream step solve failed")
     assert not (case / "logs" / "post.log").exists()  # its command never started
     st = case_state(case, ["solve", "post"])
-    assert (st.status, st.reason) == ("failed", "solve: exit code 3")
+    assert (st.status, st.reason) == ("failed", "solve: exit code 3: negative input -1")
 
 
 def test_a_missing_step_file_is_still_a_job_error(tmp_path):

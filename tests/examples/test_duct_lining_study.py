@@ -209,8 +209,6 @@ def test_a_failing_mesher_fails_the_case_and_skips_its_solve(failed_run) -> None
     assert cases.loc["lining--m0", "status"] == "done"
 
 
-@pytest.mark.xfail(strict=False, reason="seam: the step runner records a failed step's reason as "
-                   "'exit code N' only; the message the program printed stays in logs/<step>.log")
 def test_the_failed_case_reason_carries_the_mesher_message(failed_run) -> None:
     (failed,) = failed_run["outcome"].failed
     assert MESHER_MESSAGE in failed.reason

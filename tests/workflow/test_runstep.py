@@ -62,6 +62,9 @@ def test_success_writes_log_status_and_marker(tmp_path: Path) -> None:
 
 @pytest.mark.parametrize("run,writes,reason", [
     ("[sh, -c, 'exit 3']", "[]", "exit code 3"),
+    # the program's last non-empty line of output joins the exit code, e.g. a mesher's own error
+    ("[sh, -c, 'echo starting; echo \"radius must be positive\" >&2; echo; exit 2']", "[]",
+     "exit code 2: radius must be positive"),
     ("[sh, -c, 'true']", "[out.txt]", "missing output out.txt"),
     ("[no-such-program-xyz]", "[]", "cannot start: No such file or directory"),
 ])
