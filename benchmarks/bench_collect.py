@@ -4,7 +4,7 @@ Each case has a JSON metrics file, a CSV wall profile and a log residual history
 solver's output. Columns: the first collection (reads every output, writes every record), a
 repeat with nothing changed (records reused), the table build alone, and writing the tables.
 
-    python benchmarks/collect_bench.py [N ...]
+    python benchmarks/bench_collect.py [N ...]
 """
 
 from __future__ import annotations
