@@ -16,7 +16,10 @@ SCRIPT = """\
 if [ "{{ x }}" -eq 99 ]; then
   echo "cancelling my own scheduler job $SLURM_JOB_ID"
   scancel "$SLURM_JOB_ID"
-  sleep 60
+  # The scheduler's SIGTERM may reach this sleep before the step runner; the shell then goes on,
+  # so wait again (the SIGKILL after KillWait ends it) and never fall through to a good output.
+  sleep 60 || sleep 60
+  exit 7
 fi
 if [ "{{ x }}" -lt 0 ]; then echo "negative input {{ x }}" >&2; exit 3; fi
 echo "{\\"y\\": $(( {{ x }} * 2 ))}" > metrics.json
