@@ -11,22 +11,15 @@ import json
 import os
 import subprocess
 import sys
-import time
 from collections import Counter
-from collections.abc import Callable
 from pathlib import Path
 
 REPO = Path(__file__).resolve().parents[2]
 
 
-def write_study(root: Path, study: str, files: dict[str, str]) -> Path:
-    (root / "tpl").mkdir(parents=True, exist_ok=True)
-    for rel, text in files.items():
-        p = root / "tpl" / rel
-        p.parent.mkdir(parents=True, exist_ok=True)
-        p.write_text(text)
-    (root / "study.yaml").write_text(study)
-    return root
+# The workflow tests' study and process helpers serve here too (one copy).
+sys.path.insert(0, str(REPO / "tests" / "workflow"))
+from sfstudies import gone, wait_for, write_study  # noqa: E402,F401
 
 
 # The solver takes its behaviour from its first argument; once the file <study>/healed exists it
@@ -95,21 +88,6 @@ def cli(*args: str, **kw) -> subprocess.Popen:
     env = {**os.environ, "PYTHONPATH": str(REPO)}
     return subprocess.Popen([sys.executable, "-m", "studyflow.cli", *args], env=env, start_new_session=True,
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, **kw)
-
-
-def wait_for(cond: Callable[[], bool], timeout: float = 90.0) -> None:
-    deadline = time.time() + timeout
-    while not cond():
-        assert time.time() < deadline, "timed out waiting"
-        time.sleep(0.02)
-
-
-def gone(pgid: int) -> bool:
-    try:
-        os.killpg(pgid, 0)
-    except ProcessLookupError:
-        return True
-    return False
 
 
 def snapshot(root: Path) -> dict[str, tuple[int, int, bytes | None]]:

@@ -3,6 +3,9 @@
 from __future__ import annotations
 
 import json
+import os
+import time
+from collections.abc import Callable
 from pathlib import Path
 
 
@@ -14,6 +17,22 @@ def write_study(root: Path, study: str, files: dict[str, str]) -> Path:
         p.write_text(text)
     (root / "study.yaml").write_text(study)
     return root
+
+
+def wait_for(cond: Callable[[], bool], timeout: float = 120.0) -> None:
+    deadline = time.time() + timeout
+    while not cond():
+        assert time.time() < deadline, "timed out waiting"
+        time.sleep(0.02)
+
+
+def gone(pgid: int) -> bool:
+    """True when no process of the group ``pgid`` is left."""
+    try:
+        os.killpg(pgid, 0)
+    except ProcessLookupError:
+        return True
+    return False
 
 
 def table_study(root: Path, points: int, levels: int, sleep: float = 0.0, extra: str = "") -> Path:

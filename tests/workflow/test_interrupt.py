@@ -11,7 +11,6 @@ import os
 import signal
 import subprocess
 import sys
-import time
 from collections import Counter
 from pathlib import Path
 
@@ -21,7 +20,7 @@ from studyflow import api
 from studyflow.errors import EXIT_BUSY, EXIT_INTERRUPTED, StudyBusyError
 from studyflow.workflow.lock import RunLock, holder
 
-from sfstudies import executions, table_study
+from sfstudies import executions, gone, table_study, wait_for
 
 REPO = Path(__file__).resolve().parents[2]
 POINTS = 6
@@ -36,21 +35,6 @@ def start_run(root: Path) -> subprocess.Popen:
 
 def done_markers(root: Path) -> int:
     return sum(1 for c in CASES if (root / "cases" / c / ".studyflow/solve.done").exists())
-
-
-def wait_for(cond, timeout: float = 120.0) -> None:
-    deadline = time.time() + timeout
-    while not cond():
-        assert time.time() < deadline, "timed out waiting"
-        time.sleep(0.02)
-
-
-def gone(pgid: int) -> bool:
-    try:
-        os.killpg(pgid, 0)
-    except ProcessLookupError:
-        return True
-    return False
 
 
 def engine_pgid(root: Path) -> int:
