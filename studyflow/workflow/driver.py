@@ -34,6 +34,9 @@ from . import signature as sig
 from .rules_support import done_path, ensure_importable, group_components, rule_spec
 
 RULES = Path(__file__).resolve().parent / "rules" / "studyflow.smk"
+# Snakemake's command line behind a filter that skips executor plugins a local run cannot use
+# (their import can cost seconds); see enginelaunch.py.
+LAUNCHER = Path(__file__).resolve().with_name("enginelaunch.py")
 RUN_LOG = "run.log"
 RUN_INFO = "run.json"
 RULES_INFO = "rules.json"
@@ -76,7 +79,7 @@ def snakemake_argv(study: Study, targets: Sequence[str], opts: EngineOptions) ->
     if opts.retries is not None:
         config.append(f"retries={int(opts.retries)}")
     config += list(opts.config)
-    argv = [sys.executable, "-m", "snakemake", *targets,
+    argv = [sys.executable, str(LAUNCHER), *targets,
             "--config", *config,
             "--snakefile", str(RULES), "--directory", str(study.root),
             "--cores", str(cores),
@@ -197,7 +200,7 @@ def run_engine(study: Study, cases: Sequence[str], opts: EngineOptions,
             proc = subprocess.Popen(argv, cwd=str(study.root), stdout=log, stderr=subprocess.STDOUT,
                                     stdin=subprocess.DEVNULL, start_new_session=True, pass_fds=tuple(inherit_fds))
         except OSError as exc:
-            raise WorkflowError(f"cannot start Snakemake ({argv[0]} -m snakemake): {exc}") from None
+            raise WorkflowError(f"cannot start Snakemake ({argv[0]} {argv[1]}): {exc}") from None
         pgid = proc.pid
         info = sig.read_json(str(state / RUN_INFO)) or {}
         info["engine_pgid"] = pgid  # lets `status` (and tests) find the engine's process group

@@ -36,7 +36,7 @@ def test_driver_options_and_batch_hook(tmp_path: Path) -> None:
     for flag in ("--nolock", "--rerun-incomplete", "--keep-going", "--scheduler", "--max-jobs-per-timespan"):
         assert flag in argv
     assert argv[argv.index("--cores") + 1] == "3" and argv[-1] == "-p"
-    assert argv[3] == "cases/p00--m0/.studyflow/solve.done"  # explicit targets, before any option
+    assert argv[2] == "cases/p00--m0/.studyflow/solve.done"  # explicit targets, before any option
     assert group_for(study, study.steps[0]) == "sf_batch"
     assert group_components(study) == ["--group-components", "sf_batch=20"]
 
