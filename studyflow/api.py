@@ -20,6 +20,7 @@ from .render.cases import RenderResult, make_renderer, render_all, render_study
 from .spec.loader import load_study as _load_spec
 from .spec.model import Study
 from .spec.scaffold import list_examples, new_study
+from .workflow.batches import parse_setting as parse_batch
 from .workflow.driver import EngineOptions
 from .workflow.plan import Plan
 from .workflow.run import RunOutcome, plan_study, run_study
@@ -80,13 +81,16 @@ def plan(study: StudyLike) -> Plan:
 def run(study: StudyLike, cores: int | None = None, keep_going: bool = True, retries: int | None = None,
         timeout_s: float | None = None, dry: bool = False, extra_args: Sequence[str] = (),
         progress: bool = True, collect: bool = True,
-        report: Callable[[str, bool], None] | None = None, executor: str | None = None) -> RunOutcome:
+        report: Callable[[str, bool], None] | None = None, executor: str | None = None,
+        batch: str | int = "auto") -> RunOutcome:
     """Run every stale case through Snakemake, then collect the results table (also when some
     cases failed). ``outcome.exit_code`` is the command line's exit code. ``executor="slurm"``
-    sends the cases to SLURM with the study's ``cluster:`` settings (docs/cluster.md)."""
+    sends the cases to SLURM with the study's ``cluster:`` settings (docs/cluster.md).
+    ``batch``: local runs only, cases per Snakemake job (``"auto"``, ``"off"`` or a number;
+    see studyflow.workflow.batches)."""
     study = load_study(study)
     opts = EngineOptions(cores=cores, keep_going=keep_going, retries=retries, extra_args=tuple(extra_args),
-                         progress=progress)
+                         progress=progress, batch=parse_batch(batch))
     if executor and executor != "local" and not dry:
         from .cluster.run import cluster_options
 

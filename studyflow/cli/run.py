@@ -39,6 +39,9 @@ def register(sub: Any) -> None:
     r.add_argument("--dry", action="store_true", help="show the plan and stop")
     r.add_argument("--no-collect", action="store_true", help="do not collect the results after the run")
     r.add_argument("--quiet", action="store_true", help="no live progress line")
+    r.add_argument("--batch", default="auto", type=_batch_arg, metavar="auto|off|N",
+                   help="local runs: cases per Snakemake job; 'off' gives every step of every case a job of "
+                        "its own, 'auto' (default) batches only runs of more than 8 cases per core")
     r.add_argument("--executor", choices=("local", "slurm"), default="local",
                    help="where the steps run: this machine, or SLURM with the study's cluster: settings "
                         "(docs/cluster.md)")
@@ -49,6 +52,16 @@ def register(sub: Any) -> None:
     s.add_argument("study", help="study folder or study file")
     s.add_argument("--limit", type=int, default=20, help="list at most this many failures (default 20)")
     s.set_defaults(handler=run_status)
+
+
+def _batch_arg(text: str) -> str | int:
+    from ..errors import WorkflowError
+    from ..workflow.batches import parse_setting
+
+    try:
+        return parse_setting(text, "--batch")
+    except WorkflowError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
 
 
 def _hms(seconds: float | None) -> str:
@@ -96,7 +109,7 @@ def run_run(args: argparse.Namespace) -> int:
     outcome = api.run(args.study, cores=args.cores, keep_going=not args.stop_on_failure, retries=args.retries,
                       timeout_s=args.timeout * 60.0 if args.timeout else None, dry=args.dry,
                       extra_args=args.passthrough, progress=not args.quiet, collect=not args.no_collect,
-                      executor=args.executor)
+                      executor=args.executor, batch=args.batch)
     if outcome.dry:
         print_plan(outcome.plan)
         return EXIT_OK

@@ -44,4 +44,5 @@ def cluster_options(study: Study, options: EngineOptions, executor: str = "slurm
         extra_args=tuple(options.extra_args) + run.args,
         config=tuple(options.config) + run.config,
         after_engine=after_engine,
+        batch="off",  # the scheduler's job groups batch cases on a cluster
     ), run

@@ -30,7 +30,9 @@ from typing import Callable, Sequence
 
 from ..errors import WorkflowError
 from ..spec.model import Study
+from . import batches as local_batches
 from . import signature as sig
+from .enginelaunch import wants_plugins
 from .rules_support import done_path, ensure_importable, group_components, rule_spec
 
 RULES = Path(__file__).resolve().parent / "rules" / "studyflow.smk"
@@ -53,6 +55,11 @@ class EngineOptions:
     poll_s: float = 1.0
     max_jobs_per_second: int = 100_000
     config: Sequence[str] = ()  # extra KEY=VALUE entries for --config (cluster: step_runner=...)
+    # Local runs: "auto", "off" or cases per Snakemake job (batches.py); cluster runs use "off"
+    # (their own batching is the scheduler job group).
+    batch: str | int = "auto"
+    # Estimated cost of each case (its cells), to spread the expensive ones over the batches.
+    costs: dict[str, float] | None = None
     # Called as after_engine(study, cases, log_path, started_at) once the engine stopped, before
     # the cases' states are read (cluster runs attach the scheduler's reasons here).
     after_engine: Callable[[Study, Sequence[str], Path, float], object] | None = None
@@ -67,6 +74,7 @@ class EngineResult:
     targets: int
     done: int = 0
     failed: int = 0
+    batches: int = 0  # Snakemake jobs that each ran many cases (0: one job per step)
 
 
 def default_cores() -> int:
@@ -181,16 +189,29 @@ def run_engine(study: Study, cases: Sequence[str], opts: EngineOptions,
 
     ensure_importable()
     last = study.steps[-1].name
-    targets = [done_path("", c, last) for c in cases]
     state = study.state_dir
     state.mkdir(parents=True, exist_ok=True)
+    cores = opts.cores or default_cores()
+    setting = local_batches.parse_setting(opts.batch)
+    if wants_plugins(list(opts.extra_args)):  # another executor: no local batches
+        setting = "off"
+    n_batches = local_batches.batch_count(len(cases), cores, setting)
+    if n_batches:
+        groups = local_batches.deal(cases, n_batches, opts.costs)
+        retries = study.retries if opts.retries is None else int(opts.retries)
+        targets = local_batches.write(state, study.cases_dir, groups, study.step_names(), retries,
+                                      opts.keep_going)
+    else:
+        local_batches.clear(state)
+        targets = [done_path("", c, last) for c in cases]
     log_path = state / RUN_LOG
     sig.write_json_atomic(str(state / RULES_INFO), rule_spec(study))
     argv = snakemake_argv(study, targets, opts)
     started = time.time()
     sig.write_json_atomic(str(state / RUN_INFO), {
-        "started_at": started, "pid": os.getpid(), "cores": opts.cores or default_cores(),
-        "cases": len(cases), "ended_at": None, "returncode": None, "interrupted": False})
+        "started_at": started, "pid": os.getpid(), "cores": cores,
+        "cases": len(cases), "batches": len(targets) if n_batches else 0,
+        "ended_at": None, "returncode": None, "interrupted": False})
     progress = Progress(study, cases)
     say = report or _stderr_reporter()
     interrupted: list[float] = []
@@ -247,8 +268,10 @@ def run_engine(study: Study, cases: Sequence[str], opts: EngineOptions,
     info = sig.read_json(str(state / RUN_INFO)) or {}
     info.update(ended_at=time.time(), returncode=proc.returncode, interrupted=bool(interrupted))
     sig.write_json_atomic(str(state / RUN_INFO), info)
+    if n_batches:
+        local_batches.clear(state)
     return EngineResult(proc.returncode, bool(interrupted), elapsed, log_path, len(cases),
-                        progress.done, len(progress.failed))
+                        progress.done, len(progress.failed), len(targets) if n_batches else 0)
 
 
 def _stderr_reporter() -> Callable[[str, bool], None]:

@@ -25,7 +25,12 @@ STATE = ".studyflow"
 RULE_PREFIX = "sf_"
 DEFAULT_RUNNER = "studyflow.workflow.runstep"
 RUNSTEP_FILE = Path(__file__).resolve().with_name("runstep.py")
+RUNBATCH_FILE = Path(__file__).resolve().with_name("runbatch.py")
 BATCH_GROUP = "sf_batch"
+# The rule of a local batch of cases (runbatch.py). Step names start with a letter, so no
+# step's rule ("sf_" + name) can be called this.
+LOCAL_BATCH_RULE = "sf__cases"
+BATCHES = "batches"  # folder of the batch files, under the study's .studyflow
 
 
 def rule_name(step: StepSpec | str) -> str:
@@ -35,6 +40,10 @@ def rule_name(step: StepSpec | str) -> str:
 
 def done_path(prefix: str, case: str, step: str) -> str:
     return f"{prefix}cases/{case}/{STATE}/{step}.done"
+
+
+def batch_path(prefix: str, batch: str, suffix: str = ".done") -> str:
+    return f"{prefix}{STATE}/{BATCHES}/{batch}{suffix}"
 
 
 def group_for(study: Study, step: StepSpec) -> str | None:
@@ -134,21 +143,46 @@ class RuleSet:
     def group(self, step: RuleStep) -> str | None:
         return step.group
 
+    # The local batch rule (one job runs the pending steps of many cases; see runbatch.py).
+    @property
+    def batch_input(self) -> str:
+        return batch_path(self.prefix, "{batch}", ".json")
+
+    @property
+    def batch_output(self) -> str:
+        return batch_path(self.prefix, "{batch}")
+
+    @property
+    def batch_threads(self) -> int:
+        return max(s.threads for s in self.steps)
+
+    @property
+    def batch_resources(self) -> dict[str, int]:
+        mem = [s.resources["mem_mb"] for s in self.steps if "mem_mb" in s.resources]
+        return {"mem_mb": max(mem)} if mem else {}
+
+    @property
+    def batch_command(self) -> str:
+        return f"{_quote(sys.executable)} -S {_quote(str(RUNBATCH_FILE))} {{input:q}}"
+
     @property
     def shell_command(self) -> str:
         """The one shell line of every rule. Snakemake fills ``{wildcards.case}`` and
         ``{params.step}``; case ids are filesystem-safe ([A-Za-z0-9._-]) and step names are
         identifiers, so with the quoted prefix each stays one argument. ``-S``: the runner needs
         only the standard library, and skipping site start-up saves time on every job."""
-        def q(text: str) -> str:
-            return shlex.quote(text).replace("{", "{{").replace("}", "}}")
-
+        q = _quote
         case_dir = q(f"{self.prefix}cases/") + "{wildcards.case}"
         if self.runner == DEFAULT_RUNNER:
             # By file path, not -m: skips runpy and the package imports on every job (the
             # runner then imports its one helper, signature.py, from its own folder).
             return f"{q(sys.executable)} -S {q(str(RUNSTEP_FILE))} {case_dir} {{params.step}}"
         return f"{q(sys.executable)} -S -m {self.runner} {case_dir} {{params.step}}"
+
+
+def _quote(text: str) -> str:
+    """One shell word, with Snakemake's format braces escaped."""
+    return shlex.quote(text).replace("{", "{{").replace("}", "}}")
 
 
 def setup(config: dict[str, Any], workdir: str | None = None) -> RuleSet:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import sys
 from dataclasses import dataclass, field
 from typing import Any, Callable, Sequence
@@ -10,6 +11,7 @@ from ..design.cases import Design, build_design
 from ..errors import EXIT_CASES_FAILED, EXIT_INTERRUPTED, EXIT_OK, WorkflowError
 from ..render.cases import RenderResult, make_renderer, removed_cases, render_all, render_study
 from ..spec.model import Study
+from .batches import case_costs
 from .driver import EngineOptions, EngineResult, log_tail, run_engine
 from .lock import RunLock, holder
 from .plan import Plan, clear_stale_markers, compute_plan
@@ -93,6 +95,8 @@ def run_study(study: Study, design: Design | None = None, options: EngineOptions
             say = report or (lambda text, final: print(text, file=sys.stderr, flush=True))
             say(f"studyflow: {len(cases)} of {len(design.cases)} cases to run ({why})", True)
         if cases:
+            if options.costs is None:
+                options = dataclasses.replace(options, costs=case_costs(design))
             engine = run_engine(study, cases, options, report, inherit_fds=(lock.fd,) if lock.fd else ())
         steps = study.step_names()
         states = [case_state(study.cases_dir / c, steps) for c in cases]
@@ -106,6 +110,6 @@ def run_study(study: Study, design: Design | None = None, options: EngineOptions
 
 
 def options(cores: int | None = None, keep_going: bool = True, retries: int | None = None,
-            extra_args: Sequence[str] = (), progress: bool = True) -> EngineOptions:
+            extra_args: Sequence[str] = (), progress: bool = True, batch: str | int = "auto") -> EngineOptions:
     return EngineOptions(cores=cores, keep_going=keep_going, retries=retries, extra_args=tuple(extra_args),
-                         progress=progress)
+                         progress=progress, batch=batch)

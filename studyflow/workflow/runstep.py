@@ -44,6 +44,13 @@ except ImportError:  # pragma: no cover - run as a plain file
 EXIT_FAILED = 1
 EXIT_INTERRUPTED = 130
 GRACE_S = 5.0
+# Signals that arrived while a status or marker was being written, or that a caller running
+# several steps in one process (runbatch.py) caught between steps: no new step starts after one.
+STOP_REQUESTED: list[int] = []
+
+
+def _defer(signum, frame):  # noqa: ARG001
+    STOP_REQUESTED.append(signum)
 
 
 def _now() -> str:
@@ -164,7 +171,7 @@ def _wait(pid: int, limit: float | None) -> tuple[str, int | None]:
     finally:
         signal.setitimer(signal.ITIMER_REAL, 0)
         for s in (signal.SIGINT, signal.SIGTERM, signal.SIGHUP):
-            signal.signal(s, signal.SIG_IGN)  # the status and marker must be written whole now
+            signal.signal(s, _defer)  # the status and marker must be written whole now
     if outcome == "timeout":
         _stop(pid, signal.SIGTERM)
     elif outcome == "interrupted":
@@ -242,6 +249,8 @@ def _run(case_dir: str, step: str) -> int:
     os.makedirs(os.path.join(case_dir, "logs"), exist_ok=True)
     limit = doc.get("time_limit_s")
     argv = [str(a) for a in doc.get("argv", [])]
+    if STOP_REQUESTED:  # interrupted before the solver started
+        return finish("failed", "interrupted", None, EXIT_INTERRUPTED)
     fd = os.open(os.path.join(case_dir, "logs", f"{step}.log"), os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o644)
     try:
         pid = _spawn(argv, case_dir, fd)

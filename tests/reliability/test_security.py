@@ -419,15 +419,17 @@ def test_no_shell_in_the_package() -> None:
 
 
 def test_packaged_rules_have_one_shell_line_and_no_run_blocks() -> None:
-    """Snakemake's ``shell:`` goes through bash; the rules may use only the step runner's line,
-    built by ``RuleSet.shell_command`` from quoted and checked pieces, and no ``run:`` block."""
+    """Snakemake's ``shell:`` goes through bash; the rules may use only the step runner's and the
+    batch runner's lines, built by ``RuleSet.shell_command`` and ``RuleSet.batch_command`` from
+    quoted and checked pieces, and no ``run:`` block."""
     for smk in sorted((PACKAGE / "workflow" / "rules").glob("*.smk")):
         text = smk.read_text()
         code = [line.split("#")[0] for line in text.splitlines()]
         shells = [line.strip() for line in code if re.match(r"^\s*shell\s*:", line)]
-        assert shells in ([], ["shell: _SF.shell_command"]), (smk, shells)
+        assert shells in ([], ["shell: _SF.shell_command", "shell: _SF.batch_command"]), (smk, shells)
         assert not any(re.match(r"^\s*run\s*:", line) for line in code), smk
         assert "wildcard_constraints" in text and r'case=r"[A-Za-z0-9][A-Za-z0-9._-]*"' in text
+        assert r'batch=r"b[0-9]+"' in text
 
 
 # --- a reviewer bundle ships nothing from outside the study --------------------------------------

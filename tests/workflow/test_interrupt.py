@@ -27,9 +27,14 @@ POINTS = 6
 CASES = [f"p{i:02d}--m{k}" for i in range(POINTS) for k in range(2)]
 
 
-def start_run(root: Path) -> subprocess.Popen:
+# One Snakemake job per step, and batches of three cases per job (studyflow.workflow.runbatch).
+BATCHES = pytest.mark.parametrize("batch", ["off", "3"])
+
+
+def start_run(root: Path, batch: str = "off") -> subprocess.Popen:
     env = {**os.environ, "PYTHONPATH": str(REPO)}
-    return subprocess.Popen([sys.executable, "-m", "studyflow.cli", "run", str(root), "--cores", "2", "--quiet"],
+    return subprocess.Popen([sys.executable, "-m", "studyflow.cli", "run", str(root), "--cores", "2", "--quiet",
+                             "--batch", batch],
                             env=env, start_new_session=True, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
 
 
@@ -61,9 +66,10 @@ def rerun_completes_each_case_once(root: Path) -> None:
     assert values == {f"p{i:02d}--m{k}": 10 * i + 2 * 2**k for i in range(POINTS) for k in range(2)}
 
 
-def test_sigint_to_the_group_then_rerun(tmp_path: Path) -> None:
+@BATCHES
+def test_sigint_to_the_group_then_rerun(tmp_path: Path, batch: str) -> None:
     root = table_study(tmp_path / "s", points=POINTS, levels=2, sleep=1.0)
-    proc = start_run(root)
+    proc = start_run(root, batch)
     wait_for(lambda: done_markers(root) >= 2)
     pgid = engine_pgid(root)
     st = api.status(root)  # from another process while the run goes on
@@ -77,9 +83,10 @@ def test_sigint_to_the_group_then_rerun(tmp_path: Path) -> None:
     rerun_completes_each_case_once(root)
 
 
-def test_sigkill_of_everything_then_rerun(tmp_path: Path) -> None:
+@BATCHES
+def test_sigkill_of_everything_then_rerun(tmp_path: Path, batch: str) -> None:
     root = table_study(tmp_path / "s", points=POINTS, levels=2, sleep=1.0)
-    proc = start_run(root)
+    proc = start_run(root, batch)
     wait_for(lambda: done_markers(root) >= 2)
     pgid = engine_pgid(root)
     os.killpg(proc.pid, signal.SIGKILL)

@@ -24,6 +24,7 @@ except StudyflowError as _err:
 
 wildcard_constraints:
     case=r"[A-Za-z0-9][A-Za-z0-9._-]*",
+    batch=r"b[0-9]+",
 
 # The default target (every case's last step) lives in the including Snakefile, because Snakemake
 # takes the default target from the main file only: `rule all: input: STUDYFLOW.all_targets`.
@@ -42,3 +43,12 @@ for _step in _SF.steps:
         # Evaluated when the job runs, so it must not depend on the loop variable: the step's
         # name comes in through params (fixed when the rule is defined).
         shell: _SF.shell_command
+
+# A local batch: one job runs the pending steps of many cases (the driver's --batch; runbatch.py).
+rule:
+    name: "sf__cases"
+    input: _SF.batch_input
+    output: _SF.batch_output
+    threads: _SF.batch_threads
+    resources: **_SF.batch_resources
+    shell: _SF.batch_command
