@@ -12,7 +12,7 @@ Every function takes a loaded ``Study`` or a path to a study folder or file.
 from __future__ import annotations
 
 import os
-from typing import Any, Callable, Sequence, Union
+from typing import TYPE_CHECKING, Any, Callable, Sequence, Union
 
 from .design.cases import Design, build_design
 from .errors import CollectError, StudySpecError
@@ -25,10 +25,35 @@ from .workflow.driver import EngineOptions
 from .workflow.plan import Plan
 from .workflow.run import RunOutcome, plan_study, run_study
 from .workflow.status import StudyStatus, study_status
-from .bundle import AuditReport, PackResult, RerunChoice, audit, pack  # noqa: F401  reviewer bundle (pack, audit)
-from .analysis.study import assess_study as assess  # noqa: F401  uncertainty table (analysis)
-from .report import build_report as report  # noqa: F401  HTML report, figures and tables (report)
-from .collect import collect_case, read_results, write_tables  # noqa: F401  one case's record, the tables (collect)
+
+# The upper layers, imported on first use (PEP 562): a plan or a status should not pay for
+# matplotlib, scipy and pandas. name -> (module, attribute).
+_LATER = {
+    "AuditReport": ("bundle", "AuditReport"), "PackResult": ("bundle", "PackResult"),
+    "RerunChoice": ("bundle", "RerunChoice"), "audit": ("bundle", "audit"), "pack": ("bundle", "pack"),
+    "assess": ("analysis.study", "assess_study"),  # uncertainty table (analysis)
+    "report": ("report", "build_report"),  # HTML report, figures and tables (report)
+    "collect_case": ("collect", "collect_case"), "read_results": ("collect", "read_results"),
+    "write_tables": ("collect", "write_tables"),
+}
+
+if TYPE_CHECKING:
+    from .analysis.study import assess_study as assess  # noqa: F401
+    from .bundle import AuditReport, PackResult, RerunChoice, audit, pack  # noqa: F401
+    from .collect import collect_case, read_results, write_tables  # noqa: F401
+    from .report import build_report as report  # noqa: F401
+
+
+def __getattr__(name: str) -> Any:
+    where = _LATER.get(name)
+    if where is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    import importlib
+
+    value = getattr(importlib.import_module(f"{__package__}.{where[0]}"), where[1])
+    globals()[name] = value
+    return value
+
 
 StudyLike = Union[Study, str, os.PathLike]
 
@@ -41,24 +66,30 @@ __all__ = [
 def load_study(path: StudyLike) -> Study:
     """Load and check a study: the schema, the cross-key rules and every quantity's collector
     options. Raises ``StudySpecError`` (or ``CollectError``) listing every problem."""
+    return _load(path)[0]
+
+
+def _load(path: StudyLike) -> tuple[Study, Design | None]:
+    """The study and, when it was just loaded, the design built to check it (so a run of 10,000
+    cases does not build it twice)."""
     if isinstance(path, Study):
-        return path
+        return path, None
     study = _load_spec(path)
-    _check_quantities(study)
-    return study
+    return study, _check_quantities(study)
 
 
-def _check_quantities(study: Study) -> None:
+def _check_quantities(study: Study) -> Design | None:
     try:
         from .collect import check_quantities
     except ImportError:  # collection layer not installed in this build
-        return
+        return None
     design = build_design(study)
     try:
         check_quantities(study.quantities, iteration=study.iteration, mesh=study.mesh,
                          parameters=design.parameter_names, file=str(study.file))
     except CollectError as exc:
         raise StudySpecError(exc.problems, headline=exc.headline) from None
+    return design
 
 
 def design(study: StudyLike) -> Design:
@@ -75,7 +106,8 @@ def render(study: StudyLike, time_limit_s: float | None = None) -> RenderResult:
 
 def plan(study: StudyLike) -> Plan:
     """What a run would do now, and why; writes nothing."""
-    return plan_study(load_study(study))
+    study, design = _load(study)
+    return plan_study(study, design)
 
 
 def run(study: StudyLike, cores: int | None = None, keep_going: bool = True, retries: int | None = None,
@@ -88,7 +120,7 @@ def run(study: StudyLike, cores: int | None = None, keep_going: bool = True, ret
     sends the cases to SLURM with the study's ``cluster:`` settings (docs/cluster.md).
     ``batch``: local runs only, cases per Snakemake job (``"auto"``, ``"off"`` or a number;
     see studyflow.workflow.batches)."""
-    study = load_study(study)
+    study, design = _load(study)
     opts = EngineOptions(cores=cores, keep_going=keep_going, retries=retries, extra_args=tuple(extra_args),
                          progress=progress, batch=parse_batch(batch))
     if executor and executor != "local" and not dry:
@@ -100,7 +132,7 @@ def run(study: StudyLike, cores: int | None = None, keep_going: bool = True, ret
         if collect and not outcome.interrupted:
             outcome.tables = _collect(study, write=True)
 
-    return run_study(study, options=opts, time_limit_s=timeout_s, dry=dry, report=report, after=after)
+    return run_study(study, design, options=opts, time_limit_s=timeout_s, dry=dry, report=report, after=after)
 
 
 def status(study: StudyLike) -> StudyStatus:

@@ -15,17 +15,39 @@ group ``studyflow.collectors``.
 
 from __future__ import annotations
 
-from .case import CaseRecord, collect_case, judge_converged, read_quantity
-from .caseinfo import CaseInfo
-from .check import check_quantities
-from .registry import ENTRY_POINT_GROUP, Collector
-from .store import read_results, write_tables
-from .study import collect_study
-from .tables import ResultTables
-from .values import QuantityResult, ReadFailure, Reading
+import importlib
+from typing import TYPE_CHECKING, Any
 
-__all__ = [
-    "CaseInfo", "CaseRecord", "Collector", "ENTRY_POINT_GROUP", "QuantityResult", "ReadFailure", "Reading",
-    "ResultTables", "check_quantities", "collect_case", "collect_study", "judge_converged", "read_quantity",
-    "read_results", "write_tables",
-]
+# Each name is imported from its module on first use (PEP 562): loading a study only checks its
+# quantities (``check``), and should not pay for pandas and the field readers at every command.
+_WHERE = {
+    "CaseRecord": "case", "collect_case": "case", "judge_converged": "case", "read_quantity": "case",
+    "CaseInfo": "caseinfo", "check_quantities": "check", "ENTRY_POINT_GROUP": "registry",
+    "Collector": "registry", "read_results": "store", "write_tables": "store", "collect_study": "study",
+    "ResultTables": "tables", "QuantityResult": "values", "ReadFailure": "values", "Reading": "values",
+}
+
+__all__ = sorted(_WHERE)
+
+if TYPE_CHECKING:
+    from .case import CaseRecord, collect_case, judge_converged, read_quantity
+    from .caseinfo import CaseInfo
+    from .check import check_quantities
+    from .registry import ENTRY_POINT_GROUP, Collector
+    from .store import read_results, write_tables
+    from .study import collect_study
+    from .tables import ResultTables
+    from .values import QuantityResult, ReadFailure, Reading
+
+
+def __getattr__(name: str) -> Any:
+    module = _WHERE.get(name)
+    if module is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    value = getattr(importlib.import_module(f"{__name__}.{module}"), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(_WHERE))

@@ -20,19 +20,20 @@ exactly the steps whose done marker is missing: the plan removed the markers of 
 
 from __future__ import annotations
 
+import json
 import os
 import signal
 import sys
 import time
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Callable, Sequence
+from typing import Any, Callable, Sequence
 
 from ..errors import WorkflowError
 from ..spec.model import Study
 from . import batches as local_batches
 from . import signature as sig
-from .enginelaunch import wants_plugins
+from .enginelaunch import TARGETS_ON_STDIN, wants_plugins
 from .rules_support import done_path, ensure_importable, group_components, rule_spec
 
 RULES = Path(__file__).resolve().parent / "rules" / "studyflow.smk"
@@ -174,16 +175,75 @@ def _killpg(pgid: int, signo: int) -> None:
         pass
 
 
+class EngineStart:
+    """Snakemake started while the study is still being rendered and planned.
+
+    Snakemake spends ~1.4 s importing itself and collecting its plugins before it reads a
+    single option that depends on the plan (the targets). Started first, it does that on a
+    second core while this process renders and plans (at 10,000 cases, ~2.5 s), then receives
+    its targets on stdin (``enginelaunch.py --targets-on-stdin``). When the plan finds nothing
+    to run, the waiting process is killed; on a one-core machine nothing is started early.
+    """
+
+    def __init__(self, study: Study, opts: EngineOptions, inherit_fds: Sequence[int] = ()):
+        import subprocess
+
+        self.proc = None
+        if default_cores() < 2:
+            return
+        ensure_importable()
+        state = study.state_dir
+        state.mkdir(parents=True, exist_ok=True)
+        argv = [sys.executable, str(LAUNCHER), TARGETS_ON_STDIN, *snakemake_argv(study, [], opts)[2:]]
+        with open(state / RUN_LOG, "wb") as log:
+            try:
+                self.proc = subprocess.Popen(argv, cwd=str(study.root), stdout=log, stderr=subprocess.STDOUT,
+                                             stdin=subprocess.PIPE, start_new_session=True,
+                                             pass_fds=tuple(inherit_fds))
+            except OSError:
+                self.proc = None  # run_engine starts it the usual way and reports why it cannot
+
+    def go(self, targets: Sequence[str]) -> Any:
+        """The started engine, given ``targets``; None when it is gone (then start a new one)."""
+        proc, self.proc = self.proc, None
+        if proc is None:
+            return None
+        try:
+            if proc.poll() is not None:
+                raise OSError("the engine stopped early")
+            proc.stdin.write(json.dumps(list(targets)).encode())
+            proc.stdin.close()
+        except OSError:
+            _discard(proc)
+            return None
+        return proc
+
+    def discard(self) -> None:
+        proc, self.proc = self.proc, None
+        if proc is not None:
+            _discard(proc)
+
+
+def _discard(proc: Any) -> None:
+    try:
+        proc.stdin.close()
+    except OSError:
+        pass
+    _killpg(proc.pid, signal.SIGKILL)
+    proc.wait()
+
+
 def run_engine(study: Study, cases: Sequence[str], opts: EngineOptions,
                report: Callable[[str, bool], None] | None = None,
-               inherit_fds: Sequence[int] = ()) -> EngineResult:
+               inherit_fds: Sequence[int] = (), start: EngineStart | None = None) -> EngineResult:
     """Run the last step of each of ``cases`` (and whatever it needs) through Snakemake.
 
     SIGINT (Ctrl-C) or SIGTERM to studyflow is forwarded as SIGINT to the engine's process
     group; what is still running ``grace_s`` later is killed with SIGKILL. Finished cases keep
     their done markers; interrupted steps have none and run again next time. ``inherit_fds``
     (the run lock's descriptor) are passed to the engine, so the study stays locked while
-    Snakemake runs even if this process is killed.
+    Snakemake runs even if this process is killed. ``start``: an engine already started (it
+    gets the targets; when it is gone, a new one is started).
     """
     import subprocess
 
@@ -216,12 +276,15 @@ def run_engine(study: Study, cases: Sequence[str], opts: EngineOptions,
     say = report or _stderr_reporter()
     interrupted: list[float] = []
 
-    with open(log_path, "wb") as log:
-        try:
-            proc = subprocess.Popen(argv, cwd=str(study.root), stdout=log, stderr=subprocess.STDOUT,
-                                    stdin=subprocess.DEVNULL, start_new_session=True, pass_fds=tuple(inherit_fds))
-        except OSError as exc:
-            raise WorkflowError(f"cannot start Snakemake ({argv[0]} {argv[1]}): {exc}") from None
+    proc = start.go(targets) if start is not None else None
+    with open(log_path, "ab" if proc is not None else "wb") as log:
+        if proc is None:
+            try:
+                proc = subprocess.Popen(argv, cwd=str(study.root), stdout=log, stderr=subprocess.STDOUT,
+                                        stdin=subprocess.DEVNULL, start_new_session=True,
+                                        pass_fds=tuple(inherit_fds))
+            except OSError as exc:
+                raise WorkflowError(f"cannot start Snakemake ({argv[0]} {argv[1]}): {exc}") from None
         pgid = proc.pid
         info = sig.read_json(str(state / RUN_INFO)) or {}
         info["engine_pgid"] = pgid  # lets `status` (and tests) find the engine's process group

@@ -12,7 +12,7 @@ from ..errors import EXIT_CASES_FAILED, EXIT_INTERRUPTED, EXIT_OK, WorkflowError
 from ..render.cases import RenderResult, make_renderer, removed_cases, render_all, render_study
 from ..spec.model import Study
 from .batches import case_costs
-from .driver import EngineOptions, EngineResult, log_tail, run_engine
+from .driver import EngineOptions, EngineResult, EngineStart, log_tail, run_engine
 from .lock import RunLock, holder
 from .plan import Plan, clear_stale_markers, compute_plan
 from .state import DONE, FAILED, CaseState, case_state
@@ -82,31 +82,49 @@ def run_study(study: Study, design: Design | None = None, options: EngineOptions
     options = options or EngineOptions()
     design = design or build_design(study)
     with RunLock(study.state_dir) as lock:
-        rendered = render_all(study, design, make_renderer(study, time_limit_s))
-        plan = compute_plan(study, rendered, removed_cases(study, design))
-        if dry:
-            return RunOutcome(plan, None, None, dry=True)
-        result = render_study(study, design, rendered=rendered)
-        clear_stale_markers(study, plan)
-        cases = plan.cases_to_run()
-        engine = None
-        if cases and options.progress:
-            why = ", ".join(f"{n} {r}" for r, n in plan.reasons().most_common(3))
-            say = report or (lambda text, final: print(text, file=sys.stderr, flush=True))
-            say(f"studyflow: {len(cases)} of {len(design.cases)} cases to run ({why})", True)
-        if cases:
-            if options.costs is None:
-                options = dataclasses.replace(options, costs=case_costs(design))
-            engine = run_engine(study, cases, options, report, inherit_fds=(lock.fd,) if lock.fd else ())
-        steps = study.step_names()
-        states = [case_state(study.cases_dir / c, steps) for c in cases]
-        outcome = RunOutcome(plan, result, engine, states)
-        if engine and engine.returncode != 0 and not engine.interrupted and not outcome.failed:
-            raise WorkflowError(f"Snakemake stopped with exit code {engine.returncode} before running the "
-                                f"cases; its log is {engine.log}:\n{log_tail(engine.log)}")
-        if after is not None:
-            after(outcome)
-        return outcome
+        fds = (lock.fd,) if lock.fd else ()
+        start = None if dry else EngineStart(study, options, inherit_fds=fds)
+        try:
+            return _locked_run(study, design, options, time_limit_s, dry, report, after, fds, start)
+        finally:
+            if start is not None:
+                start.discard()
+
+
+def _locked_run(study: Study, design: Design, options: EngineOptions, time_limit_s: float | None, dry: bool,
+                report: Callable[[str, bool], None] | None, after: Callable[[RunOutcome], None] | None,
+                fds: tuple[int, ...], start: EngineStart | None) -> RunOutcome:
+    rendered = render_all(study, design, make_renderer(study, time_limit_s))
+    plan = compute_plan(study, rendered, removed_cases(study, design))
+    if dry:
+        return RunOutcome(plan, None, None, dry=True)
+    result = render_study(study, design, rendered=rendered)
+    clear_stale_markers(study, plan)
+    cases = plan.cases_to_run()
+    engine = None
+    if not cases and start is not None:
+        start.discard()
+    if cases and options.progress:
+        why = ", ".join(f"{n} {r}" for r, n in plan.reasons().most_common(3))
+        say = report or (lambda text, final: print(text, file=sys.stderr, flush=True))
+        say(f"studyflow: {len(cases)} of {len(design.cases)} cases to run ({why})", True)
+    if cases:
+        if options.costs is None:
+            options = dataclasses.replace(options, costs=case_costs(design))
+        engine = run_engine(study, cases, options, report, inherit_fds=fds, start=start)
+    steps = study.step_names()
+    states = [case_state(study.cases_dir / c, steps) for c in cases]
+    outcome = RunOutcome(plan, result, engine, states)
+    # The engine failing while no case failed and some never finished: it stopped before running
+    # them (a Snakefile or option problem). When every case finished well by its own records (a
+    # scheduler cancelled a job after its step had ended), the results stand and are collected.
+    unfinished = any(c.status != DONE for c in states)
+    if engine and engine.returncode != 0 and not engine.interrupted and not outcome.failed and unfinished:
+        raise WorkflowError(f"Snakemake stopped with exit code {engine.returncode} before running the "
+                            f"cases; its log is {engine.log}:\n{log_tail(engine.log)}")
+    if after is not None:
+        after(outcome)
+    return outcome
 
 
 def options(cores: int | None = None, keep_going: bool = True, retries: int | None = None,

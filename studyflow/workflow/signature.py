@@ -14,6 +14,7 @@ Done marker ``.studyflow/<step>.done`` (JSON)::
 from __future__ import annotations
 
 import os
+import sys
 
 # The step runner imports this module on every job, so it avoids ``json`` and ``hashlib``
 # (together ~30 ms of start-up under load: json pulls in ``re`` and compiles patterns, hashlib
@@ -78,7 +79,10 @@ def _encode(obj: object, out: list[str], item_sep: str, key_sep: str) -> None:
 
 def dumps(obj: object, item_sep: str = ",", key_sep: str = ":") -> str:
     """``json.dumps(obj, sort_keys=True, separators=(item_sep, key_sep), allow_nan=False)``."""
-    if _enc_str is None:  # pragma: no cover
+    json = sys.modules.get("json")
+    if json is not None or _enc_str is None:
+        # A process that has ``json`` already (the plan of 10,000 cases) uses its C encoder,
+        # some 3x faster than the encoder below, which spares the step runner the import.
         import json
 
         return json.dumps(obj, sort_keys=True, separators=(item_sep, key_sep), allow_nan=False)

@@ -23,6 +23,22 @@ def test_dumps_and_loads_agree_with_the_json_module(doc) -> None:
     assert sig.dumps(doc) == json.dumps(doc, sort_keys=True, separators=(",", ":"), allow_nan=False)
     assert sig.dumps(doc, ", ", ": ") == json.dumps(doc, sort_keys=True, separators=(", ", ": "))
     assert sig.loads(json.dumps(doc)) == json.loads(json.dumps(doc))
+    # the runner's own encoder (what a process without json, the step runner, uses)
+    for seps in ((",", ":"), (", ", ": ")):
+        out: list[str] = []
+        sig._encode(doc, out, *seps)
+        assert "".join(out) == json.dumps(doc, sort_keys=True, separators=seps, allow_nan=False)
+
+
+def test_step_runner_does_not_import_json() -> None:
+    import subprocess
+    import sys
+
+    code = ("import sys; sys.path.insert(0, sys.argv[1]); import signature as s; "
+            "s.dumps({'a': [1, 2.5, None]}); print('json' in sys.modules)")
+    out = subprocess.run([sys.executable, "-S", "-c", code, str(sig.__file__).rsplit("/", 1)[0]],
+                         capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "False"
 
 
 def test_loads_refuses_what_json_refuses() -> None:
