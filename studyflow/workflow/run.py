@@ -83,18 +83,19 @@ def run_study(study: Study, design: Design | None = None, options: EngineOptions
     design = design or build_design(study)
     with RunLock(study.state_dir) as lock:
         fds = (lock.fd,) if lock.fd else ()
+        rendered = render_all(study, design, make_renderer(study, time_limit_s))
+        # The templates are good: the engine can start on another core while the plan is made.
         start = None if dry else EngineStart(study, options, inherit_fds=fds)
         try:
-            return _locked_run(study, design, options, time_limit_s, dry, report, after, fds, start)
+            return _locked_run(study, design, rendered, options, dry, report, after, fds, start)
         finally:
             if start is not None:
                 start.discard()
 
 
-def _locked_run(study: Study, design: Design, options: EngineOptions, time_limit_s: float | None, dry: bool,
+def _locked_run(study: Study, design: Design, rendered: list, options: EngineOptions, dry: bool,
                 report: Callable[[str, bool], None] | None, after: Callable[[RunOutcome], None] | None,
                 fds: tuple[int, ...], start: EngineStart | None) -> RunOutcome:
-    rendered = render_all(study, design, make_renderer(study, time_limit_s))
     plan = compute_plan(study, rendered, removed_cases(study, design))
     if dry:
         return RunOutcome(plan, None, None, dry=True)
