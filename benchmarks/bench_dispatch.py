@@ -8,7 +8,9 @@ then times, on ``--cores`` cores:
 
 * ``xargs``      the same N commands run by ``xargs -P <cores>`` (no bookkeeping at all);
 * ``run``        ``studyflow run`` from nothing (render, plan, Snakemake, step runner);
-* ``overhead``   (run - xargs) / N: what studyflow adds per case;
+* ``overhead``   (run - xargs) / N: what studyflow adds per case, start-up included; a
+                 least-squares line through all sizes splits it into a cost paid once per run
+                 and a cost per case;
 * ``no-op``      a second ``run`` when nothing changed (render + plan, no engine);
 * ``plan``       ``studyflow plan`` alone, all cases up to date;
 * ``1 changed``  ``run`` after one parameter value of one case changed.
@@ -115,10 +117,21 @@ def main() -> int:
     head = f"{'cases':>7} {'xargs s':>9} {'run s':>9} {'ms/case':>9} {'no-op s':>9} {'plan s':>8} {'1 changed s':>12}"
     print(head)
     print("-" * len(head))
+    rows = []
     for n in args.sizes:
         r = bench(n, args.cores, 0.0, args.keep)
+        rows.append(r)
         print(f"{n:7d} {r['xargs']:9.2f} {r['run']:9.2f} {r['overhead_ms']:9.1f} {r['noop']:9.2f} "
               f"{r['plan']:8.2f} {r['one_changed']:12.2f}", flush=True)
+    if len(rows) >= 2:
+        # run - xargs = fixed + per_case * N, least squares: the start-up paid once per run
+        # (mostly the workflow engine importing itself) and the cost that grows with the cases
+        xs = [float(r["cases"]) for r in rows]
+        ys = [r["run"] - r["xargs"] for r in rows]
+        mx, my = sum(xs) / len(xs), sum(ys) / len(ys)
+        slope = sum((x - mx) * (y - my) for x, y in zip(xs, ys)) / sum((x - mx) ** 2 for x in xs)
+        print(f"\noverhead over xargs = {my - slope * mx:.2f} s once + {1000 * slope:.2f} ms per case "
+              "(least-squares line through the rows above)")
     if args.work > 0:
         r = bench(args.work_cases, args.cores, args.work, args.keep)
         print(f"\n{args.work_cases} cases of {args.work:g} s on {args.cores} cores: xargs {r['xargs']:.1f} s, "
