@@ -87,3 +87,20 @@ def test_schema_and_usage(capsys) -> None:
         main(["run"])  # missing study argument: argparse's usage error
     assert info.value.code == 2
     assert VERB_MODULES[:3] == ("study", "run", "collect")
+
+
+def test_bad_batch_option_is_a_usage_error_naming_the_value(tmp_path: Path, capsys) -> None:
+    root = table_study(tmp_path / "s", points=1, levels=1)
+    with pytest.raises(SystemExit) as info:
+        main(["run", str(root), "--batch", "lots"])
+    assert info.value.code == 2
+    err = capsys.readouterr().err
+    assert "--batch must be auto, off or a whole number of cases per job (got 'lots')" in err
+    assert not (root / "cases").exists()
+
+
+def test_run_with_batches_from_the_command_line(tmp_path: Path, capsys) -> None:
+    root = table_study(tmp_path / "s", points=5, levels=1)
+    assert main(["run", str(root), "--batch", "2", "--quiet", "--cores", "2"]) == EXIT_OK
+    assert "ran 5 case(s): 5 done, 0 failed" in capsys.readouterr().out
+    assert json.loads((root / ".studyflow" / "run.json").read_text())["batches"] == 3
