@@ -41,8 +41,11 @@ def audit_settings(study_file: Path) -> AuditSettings:
 
     try:
         raw = load_yaml_text(study_file.read_text(encoding="utf-8")) or {}
-    except (OSError, yaml.YAMLError):
-        raw = {}
+    except (OSError, UnicodeDecodeError, yaml.YAMLError) as exc:
+        # Never fall back to default tolerances: the reviewer would audit against numbers the
+        # study did not ask for.
+        raise AuditError(f"{study_file}: cannot read the study's audit tolerances: "
+                         f"{getattr(exc, 'strerror', None) or exc}") from None
     return settings_from(raw.get("audit") if isinstance(raw, dict) else None, str(study_file))
 
 
