@@ -75,3 +75,31 @@ def executions(root: Path) -> list[str]:
 
 def status(root: Path, case: str, step: str = "solve") -> dict:
     return json.loads((root / "cases" / case / ".studyflow" / f"{step}.status.json").read_text())
+
+
+def steps_study(root: Path, points: int, extra: str = "") -> Path:
+    """Two steps per case; point ``p03``'s first step fails. Every step start is logged."""
+    pts = ", ".join(f"{{id: p{i:02d}, a: {i}}}" for i in range(points))
+    study = f"""\
+title: batch test
+template: tpl
+parameters:
+  - kind: table
+    points: [{pts}]
+steps:
+  - name: make
+    run: [sh, make.sh]
+    reads: [make.sh]
+    writes: [in.txt]
+  - name: post
+    run: [sh, post.sh]
+    reads: [post.sh]
+    writes: [out.txt]
+quantities:
+  result: {{from: json, file: out.txt, key: result}}
+{extra}"""
+    make = ("echo \"make {{ case }}\" >> ../../runs.log\n"
+            "{% if case.startswith('p03') %}echo 'mesher: no cells' >&2; exit 4{% endif %}\n"
+            "echo '{{ a }}' > in.txt\n")
+    post = ("read a < in.txt\necho \"{\\\"result\\\": $a}\" > out.txt\necho \"post {{ case }}\" >> ../../runs.log\n")
+    return write_study(root, study, {"make.sh": make, "post.sh": post})

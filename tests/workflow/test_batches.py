@@ -12,7 +12,7 @@ from studyflow import api
 from studyflow.errors import EXIT_CASES_FAILED, WorkflowError
 from studyflow.workflow import batches
 
-from sfstudies import executions, status, write_study
+from sfstudies import executions, status, steps_study, write_study
 
 
 # --- choosing and dealing batches ------------------------------------------------------------
@@ -69,34 +69,6 @@ def test_fine_meshes_spread_over_the_batches() -> None:
 
 
 # --- batched runs ----------------------------------------------------------------------------
-
-def steps_study(root: Path, points: int, extra: str = "") -> Path:
-    """Two steps per case; point ``p03``'s first step fails. Every step start is logged."""
-    pts = ", ".join(f"{{id: p{i:02d}, a: {i}}}" for i in range(points))
-    study = f"""\
-title: batch test
-template: tpl
-parameters:
-  - kind: table
-    points: [{pts}]
-steps:
-  - name: make
-    run: [sh, make.sh]
-    reads: [make.sh]
-    writes: [in.txt]
-  - name: post
-    run: [sh, post.sh]
-    reads: [post.sh]
-    writes: [out.txt]
-quantities:
-  result: {{from: json, file: out.txt, key: result}}
-{extra}"""
-    make = ("echo \"make {{ case }}\" >> ../../runs.log\n"
-            "{% if case.startswith('p03') %}echo 'mesher: no cells' >&2; exit 4{% endif %}\n"
-            "echo '{{ a }}' > in.txt\n")
-    post = ("read a < in.txt\necho \"{\\\"result\\\": $a}\" > out.txt\necho \"post {{ case }}\" >> ../../runs.log\n")
-    return write_study(root, study, {"make.sh": make, "post.sh": post})
-
 
 def test_batched_run_records_each_failure_and_reruns_only_what_changed(tmp_path: Path) -> None:
     root = steps_study(tmp_path / "s", points=7)
@@ -159,3 +131,4 @@ def test_batch_file_problem_is_a_clear_error(tmp_path: Path) -> None:
     bad.write_text(json.dumps({"cases": []}))
     assert runbatch.run(str(bad)) == runbatch.EXIT_BAD_BATCH
     assert not (tmp_path / "b00000.done").exists()
+
