@@ -12,8 +12,6 @@ import json
 import sys
 from typing import Any
 
-from ..bundle import RerunChoice, audit, pack  # the same functions studyflow.api re-exports
-from ..bundle.text import audit_text, pack_text
 from ..errors import EXIT_OK, UnsafePathError
 
 
@@ -55,12 +53,17 @@ def register(subparsers: Any) -> None:
 
 
 def run_pack(args: argparse.Namespace) -> int:
+    from ..bundle import pack  # imported when used: every other verb starts without the bundle layer
+    from ..bundle.text import pack_text
+
     result = pack(args.study, args.output, fields=not args.no_fields)
     print(json.dumps(result.to_json(), indent=1) if args.json else pack_text(result))
     return EXIT_OK
 
 
-def _choice(args: argparse.Namespace) -> RerunChoice:
+def _choice(args: argparse.Namespace) -> Any:
+    from ..bundle import RerunChoice
+
     if args.rerun == "all":
         return RerunChoice("all")
     if args.rerun_sample is not None:
@@ -75,6 +78,9 @@ def _choice(args: argparse.Namespace) -> RerunChoice:
 
 
 def run_audit(args: argparse.Namespace) -> int:
+    from ..bundle import audit
+    from ..bundle.text import audit_text
+
     try:
         report = audit(args.source, into=args.into, rerun=_choice(args), scratch=args.scratch,
                        keep_scratch=args.keep_scratch, jobs=max(1, args.jobs), engine=args.engine,
