@@ -56,9 +56,10 @@ def table(outcome) -> pd.DataFrame:
     return res.set_index("case")
 
 
-def test_solver_faults_then_rerun_keeps_finished_cases(tmp_path: Path) -> None:
+@pytest.mark.parametrize("batch", ["off", 2])  # one Snakemake job per step; two cases per job
+def test_solver_faults_then_rerun_keeps_finished_cases(tmp_path: Path, batch: object) -> None:
     root = fault_study(tmp_path / "faults", FAULTS, time_min=0.02)  # 1.2 s wall-time limit
-    first = api.run(root, cores=2, progress=False)
+    first = api.run(root, cores=2, progress=False, batch=batch)
     assert first.exit_code == EXIT_CASES_FAILED
     res = table(first)
     assert len(res) == len(FAULTS)
@@ -87,7 +88,7 @@ def test_solver_faults_then_rerun_keeps_finished_cases(tmp_path: Path) -> None:
     # A refused output of a step that ended well is kept as it is; deleting it asks for a rerun.
     (root / "cases" / "trunc--m0" / "out.json").unlink()
     assert api.plan(root).case_reason("trunc--m0") == "solve: output missing (out.json)"
-    second = api.run(root, cores=2, progress=False)
+    second = api.run(root, cores=2, progress=False, batch=batch)
     rerun = set(STEP_FAULTS) | {"trunc"}
     assert sorted(c.case for c in second.cases) == sorted(f"{p}--m0" for p in rerun)
     counts = executions(root)
