@@ -9,6 +9,12 @@ Snakemake runs as a child process through its command line, not through its Pyth
 * a stable interface: the command-line options change far less between Snakemake releases than
   its Python API did between 7, 8 and 9.
 
+The child is ``enginelaunch.py``, which calls Snakemake's own command-line entry point after
+trimming its start-up (executor plugins a local run cannot use, one module scan, timers that
+do not hold the exit); ``EngineStart`` starts it while the plan is still being made. A local run
+of many cases hands it batches of cases (``batches.py``, ``runbatch.py``) instead of one job per
+step.
+
 Options chosen for large studies (measured on a 2-core machine, see issue 2 and
 benchmarks/bench_dispatch.py): ``--scheduler greedy --scheduler-subsample 100`` and a high
 ``--max-jobs-per-timespan`` keep scheduling linear in the number of jobs; explicit targets (only
