@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import io
 import os
+from collections.abc import Iterable
 from pathlib import Path
 
 import pandas as pd
@@ -17,7 +18,13 @@ from ..fsutil import atomic_write_many
 from .tables import ResultTables
 
 RESULTS_DIR = "results"
-_TEXT = ("study", "case", "point", "quantity", "kind", "unit", "status", "reason")
+# Columns that hold text in every table of results/: read as text from CSV even when every value
+# looks like a number (a point id "3").
+TEXT_COLUMNS = ("study", "case", "point", "quantity", "kind", "unit", "status", "reason")
+# The files of each table write_tables writes, preferred first (Parquet keeps the exact dtypes).
+# Tables written by other layers (uncertainty) have both formats.
+_FILES = {"results": (".parquet", ".csv"), "histories": (".parquet", ".csv"), "cases": (".csv",)}
+_OTHER_FILES = (".parquet", ".csv")
 
 
 def _csv_bytes(df: pd.DataFrame) -> bytes:
@@ -58,7 +65,7 @@ def write_tables(study_dir: str | os.PathLike, tables: ResultTables) -> dict[str
 
 
 def _restore(df: pd.DataFrame) -> pd.DataFrame:
-    for col in _TEXT:
+    for col in TEXT_COLUMNS:
         if col in df.columns:
             df[col] = df[col].astype("str").where(df[col].notna(), "") if col == "reason" else df[col].astype("str")
     for col in ("level", "iterations"):
@@ -72,25 +79,50 @@ def _restore(df: pd.DataFrame) -> pd.DataFrame:
     return df
 
 
-def _read_csv(path: Path) -> pd.DataFrame:
+def _read_csv(path: Path, text: Iterable[str]) -> pd.DataFrame:
     # Text columns must stay text even when every value looks like a number (a point id "3").
-    df = pd.read_csv(path, dtype={c: "str" for c in _TEXT}, keep_default_na=True)
-    if "reason" in df.columns:
-        df["reason"] = df["reason"].fillna("")
-    return _restore(df)
+    return pd.read_csv(path, dtype={c: "str" for c in text}, keep_default_na=True)
+
+
+def table_file(study_dir: str | os.PathLike, stem: str) -> Path | None:
+    """The file that holds table ``stem`` of ``<study_dir>/results/`` (Parquet before CSV), or None."""
+    folder = Path(study_dir) / RESULTS_DIR
+    for suffix in _FILES.get(stem, _OTHER_FILES):
+        path = folder / f"{stem}{suffix}"
+        if path.is_file():
+            return path
+    return None
+
+
+def read_table(study_dir: str | os.PathLike, stem: str, *, required: bool = True,
+               text: Iterable[str] = ()) -> pd.DataFrame | None:
+    """Read one table of ``<study_dir>/results/``: ``results``, ``histories``, ``cases`` (the
+    collected tables, with their column types restored) or a table another layer wrote there
+    (``uncertainty``; read as stored, CSV columns in ``TEXT_COLUMNS`` or ``text`` as text).
+
+    A missing table is None, or with ``required`` a ``CollectError`` naming the file. A table that
+    exists but cannot be read is always a ``CollectError`` naming the file: a half-written or
+    foreign file must not pass for an empty one.
+    """
+    path = table_file(study_dir, stem)
+    if path is None:
+        if not required:
+            return None
+        expected = Path(study_dir) / RESULTS_DIR / f"{stem}{_FILES.get(stem, _OTHER_FILES)[-1]}"
+        raise CollectError(Problem(str(expected), "", None, "no such table: collect the study first"))
+    texts = tuple(dict.fromkeys((*TEXT_COLUMNS, *text)))
+    try:
+        if path.suffix == ".parquet":
+            df = pd.read_parquet(path)
+        else:
+            df = _read_csv(path, texts)
+        return _restore(df) if stem in _FILES else df
+    except Exception as exc:  # pyarrow, the csv parser and the dtype casts raise many unrelated types
+        raise CollectError(Problem(str(path), "", path.name, f"cannot be read as a table: {exc}")) from exc
 
 
 def read_results(study_dir: str | os.PathLike) -> ResultTables:
-    """Read the tables ``write_tables`` wrote (Parquet when present, else CSV)."""
-    paths = table_paths(study_dir)
-    frames = {}
-    for stem in ("results", "histories", "cases"):
-        pq, csv = paths.get(f"{stem}.parquet"), paths[f"{stem}.csv"]
-        if pq is not None and pq.is_file():
-            frames[stem] = _restore(pd.read_parquet(pq))
-        elif csv.is_file():
-            frames[stem] = _read_csv(csv)
-        else:
-            raise CollectError(Problem(str(csv), "", None, "no such table: collect the study first"))
+    """Read the tables ``write_tables`` wrote (Parquet when present, else CSV); a missing or
+    unreadable table is a ``CollectError`` naming its file."""
+    frames = {stem: read_table(study_dir, stem) for stem in ("results", "histories", "cases")}
     return ResultTables(frames["results"], frames["histories"], frames["cases"])
-

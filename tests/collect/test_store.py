@@ -10,6 +10,7 @@ import pytest
 
 from studyflow.collect import collect_study, read_results, write_tables
 from studyflow.collect import store
+from studyflow.errors import CollectError
 from collect_fakestudy import cases_of, good_outputs, make_study, write_case
 
 
@@ -99,3 +100,44 @@ def test_serialisation_happens_before_any_file_is_touched(study, monkeypatch) ->
         write_tables(study.root, tables)
     after = {p.name: p.read_bytes() for p in (study.root / "results").iterdir()}
     assert after == before  # not even the histories written before it
+
+
+# --- reading one table back (the reader the report and the bundle share) ---
+
+def test_one_table_reads_like_read_results(study) -> None:
+    collect_study(study, write=True)
+    whole = read_results(study.root)
+    pd.testing.assert_frame_equal(store.read_table(study.root, "results"), whole.results)
+    pd.testing.assert_frame_equal(store.read_table(study.root, "cases"), whole.cases)
+    # The CSV holds the same table as the Parquet file (pyarrow is the reference for the dtypes).
+    (study.root / "results" / "results.parquet").unlink()
+    assert store.table_file(study.root, "results").name == "results.csv"
+    pd.testing.assert_frame_equal(store.read_table(study.root, "results"), whole.results)
+
+
+def test_a_missing_table_is_none_or_an_error_naming_the_file(study) -> None:
+    assert store.table_file(study.root, "results") is None
+    assert store.read_table(study.root, "uncertainty", required=False) is None
+    with pytest.raises(CollectError) as err:
+        store.read_table(study.root, "histories")
+    assert str(study.root / "results" / "histories.csv") in str(err.value) and "collect the study first" in str(err.value)
+
+
+def test_an_unreadable_table_is_an_error_naming_the_file(study) -> None:
+    collect_study(study, write=True)
+    bad = study.root / "results" / "results.parquet"
+    bad.write_bytes(b"PAR1 cut short")  # a foreign or half-copied file, not a table
+    for read in (lambda: store.read_table(study.root, "results", required=False), lambda: read_results(study.root)):
+        with pytest.raises(CollectError) as err:
+            read()
+        assert str(bad) in str(err.value) and "cannot be read as a table" in str(err.value)
+
+
+def test_a_table_of_another_layer_is_read_as_stored(study) -> None:
+    out = study.root / "results"
+    out.mkdir(exist_ok=True)
+    # Point ids and words that look like numbers stay text; an empty reason stays missing (no restore).
+    (out / "uncertainty.csv").write_text("point,quantity,coord,U,verdict,reason\n3,drag,,0.25,1,\n")
+    table = store.read_table(study.root, "uncertainty", text=("verdict",))
+    assert table["point"].tolist() == ["3"] and table["verdict"].tolist() == ["1"]
+    assert table["U"].tolist() == [0.25] and pd.isna(table["reason"].iloc[0]) and pd.isna(table["coord"].iloc[0])
