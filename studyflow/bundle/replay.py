@@ -179,17 +179,13 @@ class UncertaintyOutcome:
 UNCERTAINTY_KEYS = ["point", "quantity", "coord"]
 
 
-def _read_table(folder: Path, stem: str):
-    """A shipped table of the study's results folder, Parquet preferred (exact dtypes), else CSV."""
-    import pandas as pd
+def _shipped_table(study_dir: Path, stem: str):
+    """A shipped table of the study's results folder (None when not shipped), read by the
+    collection layer's reader, so a shipped table is read exactly as ``studyflow`` reads its own
+    (imported here: the bundle verbs that never read a table should not pay for pandas)."""
+    from ..collect.store import read_table
 
-    pq, csv = folder / f"{stem}.parquet", folder / f"{stem}.csv"
-    if pq.is_file():
-        return pd.read_parquet(pq), pq
-    if csv.is_file():
-        return pd.read_csv(csv, dtype={"point": "str", "case": "str", "quantity": "str"},
-                           keep_default_na=True), csv
-    return None, None
+    return read_table(study_dir, stem, required=False)
 
 
 def recompute_uncertainty(root: Path, manifest: Manifest, scratch: Path,
@@ -199,11 +195,14 @@ def recompute_uncertainty(root: Path, manifest: Manifest, scratch: Path,
 
     study_dir, study_file = _study_paths(root, manifest)
     results_dir = study_dir / "results"
-    shipped, shipped_path = _read_table(results_dir, "uncertainty")
+    shipped = _shipped_table(study_dir, "uncertainty")
     if shipped is None:
         return UncertaintyOutcome(False, True, "no uncertainty table in the bundle")
     from ..analysis import assess
     from ..collect import read_results
+    from ..collect.store import table_file
+
+    shipped_path = table_file(study_dir, "uncertainty")
 
     if (manifest.template or {}).get("absolute") and (scratch / manifest.study_file).is_file():
         study_file = scratch / manifest.study_file
@@ -265,7 +264,7 @@ ENGINES = ("workflow", "direct")
 def shipped_cases_run(root: Path, manifest: Manifest) -> set[str]:
     """Cases the shipped results table has as done or failed (pending ones have nothing to compare)."""
     study_dir, _ = _study_paths(root, manifest)
-    table, _ = _read_table(study_dir / "results", "results")
+    table = _shipped_table(study_dir, "results")
     if table is None or "status" not in table:
         return set()
     return set(table.loc[table["status"].astype(str) != "pending", "case"].astype(str))
@@ -304,10 +303,10 @@ def rerun(root: Path, manifest: Manifest, scratch: Path, cases: list[str], setti
     from .compare import compare_histories, compare_results
 
     study_dir, _ = _study_paths(root, manifest)
-    shipped_results, _ = _read_table(study_dir / "results", "results")
+    shipped_results = _shipped_table(study_dir, "results")
     if shipped_results is None:
         raise AuditError(f"{manifest.study_dir}/results: the bundle has no results table to compare a re-run with")
-    shipped_hist, _ = _read_table(study_dir / "results", "histories")
+    shipped_hist = _shipped_table(study_dir, "histories")
 
     study_file = copy_inputs(root, manifest, scratch)
     settings = settings or audit_settings(study_file)
