@@ -14,15 +14,16 @@ from typing import Any
 
 import pandas as pd
 
-from ..collect import read_results
+from ..collect.store import read_table, table_file
 from ..collect.tables import CASE_COLUMNS, RESULT_TAIL
-from ..errors import InputError, Problem, StudyflowError
+from ..workflow import state as wf
 from .settings import ReportSettings, load_settings
 
 # Columns of the tidy results table that are not parameters (DEVELOPERS.md, "Tidy tables").
 RESULT_FIXED = [*CASE_COLUMNS, *RESULT_TAIL]
-TEXT_COLUMNS = ("study", "case", "point", "quantity", "kind", "unit", "status", "reason", "verdict", "method",
-                "convergence")
+# Text columns of the analysis table beyond those every results table has (collect.store.TEXT_COLUMNS).
+UNCERTAINTY_TEXT = ("verdict", "method", "convergence")
+TABLES = ("results", "histories", "cases", "uncertainty")
 
 
 @dataclass
@@ -66,27 +67,6 @@ class StudyData:
         return names
 
 
-def read_table(folder: Path, stem: str) -> tuple[pd.DataFrame | None, Path | None]:
-    """Read ``<folder>/<stem>.parquet`` (preferred) or ``.csv``; (None, None) when neither exists.
-
-    A table that exists but cannot be read is an input error naming the file: a half-written or
-    foreign file must not silently become an empty report section.
-    """
-    def read_csv(path: Path) -> pd.DataFrame:
-        # Text columns stay text even when every value looks like a number (a point id "3").
-        head = pd.read_csv(path, nrows=0).columns
-        return pd.read_csv(path, dtype={c: "str" for c in TEXT_COLUMNS if c in head})
-
-    for suffix, reader in ((".parquet", pd.read_parquet), (".csv", read_csv)):
-        path = folder / f"{stem}{suffix}"
-        if path.is_file():
-            try:
-                return reader(path), path
-            except Exception as exc:  # pyarrow and the csv parser raise many unrelated types
-                raise InputError(Problem(str(path), "", path.name, f"cannot be read as a table: {exc}")) from exc
-    return None, None
-
-
 def _read_json(path: Path) -> dict[str, Any]:
     try:
         data = json.loads(path.read_text(encoding="utf-8"))
@@ -95,16 +75,45 @@ def _read_json(path: Path) -> dict[str, Any]:
     return data if isinstance(data, dict) else {}
 
 
-def _state_of(status: dict[str, Any]) -> str:
-    # The step runner writes "state"; "status" is accepted for files written by other tools.
-    return str(status.get("state", status.get("status", ""))).lower()
+def _rendered_steps(state_dir: Path) -> list[str]:
+    """The case's steps in order, from the ``<step>.step.json`` files rendering wrote."""
+    found = []
+    for path in state_dir.glob("*.step.json"):
+        doc = _read_json(path)
+        index = _as_int(doc.get("index"))
+        found.append((index if index is not None else len(found), str(doc.get("step") or path.name[:-10])))
+    return [name for _, name in sorted(found)]
+
+
+def _folder_state(folder: Path, steps: list[str]) -> tuple[str, str, float | None]:
+    """(status, reason, wall time) of a case by the workflow's rule (``workflow.state.case_state``):
+    done only when every step has its done marker, failed or running from the first step that is
+    not done. The report knows three states; a running case is pending with the reason saying so."""
+    st = wf.case_state(folder, steps)
+    walls = [w for w in (_as_float(s.wall_s) for s in st.steps) if w is not None]
+    wall = sum(walls) if walls else None  # nothing recorded is no wall time, not zero seconds
+    if st.status == wf.DONE:
+        return "done", "", wall
+    first = next((s for s in st.steps if not s.done), None)
+    if st.status == wf.FAILED:
+        # the workflow's reason is "<step>: <reason>"; a failure recorded without a reason says "failed"
+        return "failed", st.reason if first is None or first.reason else f"{first.step}: failed", wall
+    if st.status == wf.RUNNING:
+        return "pending", st.reason, wall
+    if first is not None and first.state == "ok":
+        # The runner writes the ok status just before the done marker: a step stopped between the
+        # two has outputs that were never marked as checked, so the next run repeats it.
+        return "pending", f"{first.step}: ended without its done marker; the next run repeats it", wall
+    return "pending", "", wall
 
 
 def scan_cases(root: Path, steps: list[str]) -> dict[str, CaseState]:
     """State of every rendered case from its ``.studyflow`` folder.
 
-    A case is failed when any step's status file says so, done when every declared step has an ``ok``
-    status (or, with no declared steps, when it has at least one status and none failed), else pending.
+    Status, reason and wall time follow the workflow's own rule (``_folder_state``), so the report
+    calls a case done exactly when the workflow would not run it again and collection reads it.
+    Without declared steps (no study file) the case's rendered steps are used; a case with none
+    is pending. Start and end times, hosts and the newest status file come from the status files.
     """
     out: dict[str, CaseState] = {}
     cases_dir = root / "cases"
@@ -122,27 +131,13 @@ def scan_cases(root: Path, steps: list[str]) -> dict[str, CaseState]:
             h=_as_float(info.get("h", mesh.get("h"))),
             folder=folder,
         )
+        state.status, state.reason, state.wall_time = _folder_state(folder, steps or _rendered_steps(meta.parent))
         status_files = sorted(meta.parent.glob("*.status.json"))
-        statuses = {p.name.removesuffix(".status.json"): _read_json(p) for p in status_files}
+        statuses = [_read_json(p) for p in status_files]
         state.status_mtime = _newest_mtime(status_files)
-        failed = [(s, d) for s, d in statuses.items() if _state_of(d) == "failed"]
-        wanted = steps or list(statuses)
-        ok = [s for s in wanted if _state_of(statuses.get(s, {})) == "ok"]
-        running = [s for s, d in statuses.items() if _state_of(d) == "running"]
-        if failed:
-            state.status = "failed"
-            step, detail = failed[0]
-            state.reason = f"{step}: {detail.get('reason') or 'failed'}"
-        elif wanted and len(ok) == len(wanted):
-            state.status = "done"
-        elif running:
-            state.reason = f"{running[0]}: running"
-        walls = [_as_float(d.get("wall_s", d.get("wall_time"))) for d in statuses.values()]
-        walls = [w for w in walls if w is not None]
-        state.wall_time = sum(walls) if walls else None
-        starts = sorted(str(d["started"]) for d in statuses.values() if d.get("started"))
-        ends = sorted(str(d["ended"]) for d in statuses.values() if d.get("ended"))
-        state.hosts = tuple(sorted({str(d["host"]) for d in statuses.values() if d.get("host")}))
+        starts = sorted(str(d["started"]) for d in statuses if d.get("started"))
+        ends = sorted(str(d["ended"]) for d in statuses if d.get("ended"))
+        state.hosts = tuple(sorted({str(d["host"]) for d in statuses if d.get("host")}))
         state.started = starts[0] if starts else None
         state.ended = ends[-1] if ends else None
         out[state.case] = state
@@ -174,26 +169,10 @@ def load(root: str | Path) -> StudyData:
     """Gather the study's settings, tables and case states. Missing tables are ``None``, not errors."""
     root = Path(root).resolve()
     settings = load_settings(root)
-    res_dir = root / "results"
-    tables: dict[str, pd.DataFrame | None] = {}
-    try:
-        # The collection layer's reader restores its own column types; it needs all three of its tables.
-        collected = read_results(root)
-    except StudyflowError:
-        collected = None
-    else:
-        tables.update(results=collected.results, histories=collected.histories, cases=collected.cases)
-    files: dict[str, Path] = {}
-    for stem in ("results", "histories", "cases", "uncertainty"):
-        if stem in tables:
-            found = [p for p in (res_dir / f"{stem}.parquet", res_dir / f"{stem}.csv") if p.is_file()]
-            if found:
-                files[stem] = found[0]
-            continue
-        # a partly collected study: read what is there, one table at a time
-        tables[stem], path = read_table(res_dir, stem)
-        if path is not None:
-            files[stem] = path
+    # collection's own reader: column types restored, an unreadable table an error naming its file
+    tables = {stem: read_table(root, stem, required=False, text=UNCERTAINTY_TEXT if stem == "uncertainty" else ())
+              for stem in TABLES}
+    files = {stem: path for stem in TABLES if (path := table_file(root, stem)) is not None}
     return StudyData(
         root=root,
         settings=settings,

@@ -92,11 +92,16 @@ def write_study(root: Path, res: list[float] = (1.0e4, 3.0e4, 1.0e5), angles: li
                 "sizes": {"nx": nx, "ny": ny}, "h": h}), encoding="utf-8")
             wall = 2.0 * 4**level * (1 + 0.1 * pi)
             if status != "pending":
+                # as the step runner writes them (DEVELOPERS.md, "Case folders"): the status, then for
+                # a step that ended well its done marker
                 (folder / ".studyflow" / "solve.status.json").write_text(json.dumps({
-                    "status": "ok" if status == "done" else "failed", "reason": reason.split(": ", 1)[-1],
+                    "state": "ok" if status == "done" else "failed",
+                    "reason": reason.split(": ", 1)[-1] if reason else None,
                     "exit_code": 0 if status == "done" else 3, "wall_s": wall, "host": f"node-{1 + level}",
                     "started": f"2026-03-0{1 + level}T10:00:00Z", "ended": f"2026-03-0{1 + level}T10:05:00Z"}),
                     encoding="utf-8")
+                if status == "done":
+                    mark_done(folder, "solve")
             case_rows.append({"case": case, "point": pid, "level": level, "status": status, "reason": reason,
                               "wall_time": wall if status != "pending" else np.nan})
             base = {"study": root.name, "case": case, "point": pid, "level": level, "Re": re, "angle": angle,
@@ -135,6 +140,12 @@ def write_study(root: Path, res: list[float] = (1.0e4, 3.0e4, 1.0e5), angles: li
     if analysis:
         pd.DataFrame(unc_rows).to_csv(results / "uncertainty.csv", index=False)
     return root
+
+
+def mark_done(folder: Path, step: str) -> None:
+    """The done marker the step runner writes last, after checking the step's outputs."""
+    (folder / ".studyflow" / f"{step}.done").write_text(json.dumps({
+        "signature": "0" * 64, "finished": "2026-03-05T10:05:00Z"}), encoding="utf-8")
 
 
 def _unc(pid, re, angle, quantity, coord, f1, f2, f3, levels) -> dict:

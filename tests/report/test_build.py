@@ -10,7 +10,7 @@ from html.parser import HTMLParser
 
 import pandas as pd
 import pytest
-from report_synthetic import point_id, richardson
+from report_synthetic import mark_done, point_id, richardson
 
 from studyflow.errors import InputError
 from studyflow.report import build_report
@@ -126,6 +126,7 @@ def test_rebuild_while_running_shows_progress(tmp_path):
     status = root / "cases" / f"{point_id(1.0e4, 0.0)}--m2" / ".studyflow" / "solve.status.json"
     status.write_text(json.dumps({"state": "ok", "wall_s": 3.0, "started": "2026-03-04T09:00:00Z",
                                   "ended": "2026-03-04T09:01:00Z"}))
+    mark_done(status.parent.parent, "solve")
     second = build_report(root, fields=False)
     assert second.counts == {"done": 5, "failed": 1, "pending": 0}
     assert any("collect again" in n for n in second.notices)
