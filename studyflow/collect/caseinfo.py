@@ -1,10 +1,10 @@
 """What collection needs to know about a study and its case folders, in one place.
 
-This is the only module that knows the layout written by the layers below (DEVELOPERS.md, "Case
-folders"): ``cases/<id>/.studyflow/case.json`` from rendering, ``<step>.done`` markers and
-``<step>.status.json`` from the workflow (``studyflow.workflow.runstep``: ``state`` ok | failed |
-running, ``reason``, ``exit_code``, ``wall_s``), and the attributes of ``studyflow.spec.Study`` and of the
-design's case table. If one of those changes, this is the file to adjust.
+This is the only module of collection that knows the layout written by the layers below (DEVELOPERS.md,
+"Case folders"): ``cases/<id>/.studyflow/case.json`` from rendering, the state of a case's steps
+(judged by the workflow's own ``studyflow.workflow.state.case_state`` from its ``<step>.done`` markers
+and ``<step>.status.json`` files), and the attributes of ``studyflow.spec.Study`` and of the design's
+case table. If one of those changes, this is the file to adjust.
 """
 
 from __future__ import annotations
@@ -20,6 +20,8 @@ from pathlib import Path
 from typing import Any, Literal
 
 from ..errors import CollectError, Problem, UnsafePathError
+from ..workflow import signature as sig
+from ..workflow import state as wf
 
 STATE_DIR = ".studyflow"
 CaseStatus = Literal["done", "failed", "pending"]
@@ -196,62 +198,34 @@ def _stamp(path: Path) -> tuple[str, int, int] | None:
 
 
 def case_state(folder: Path, steps: Iterable[str]) -> CaseState:
-    """Judge a case from its ``<step>.done`` markers and ``<step>.status.json`` files.
+    """Judge a case by the workflow's rule, ``studyflow.workflow.state.case_state``.
 
-    Done only when every step has its marker and an ``ok`` status, so the outputs of an interrupted
-    or half-finished case are never read; failed when any step's status says so (with its reason).
+    Done only when every step has its done marker (the step runner writes it last, after checking
+    the outputs), so the outputs of an interrupted or half-finished case are never read; failed when
+    the first step that is not done failed (a failure behind a step being rerun no longer stands);
+    else pending. The reasons are worded for the results table, and a done case carries the stamps
+    of its status files and markers, which tell collection whether its record is still current.
     """
-    steps = tuple(steps)
-    state = folder / STATE_DIR
-    wall = 0.0
-    have_wall = False
-    stamps: list[tuple[str, int, int]] = []
-    missing: list[str] = []
-    running: list[str] = []
-    for step in steps:
-        status_path = state / f"{step}.status.json"
-        done_path = state / f"{step}.done"
-        try:
-            status = json.loads(status_path.read_text(encoding="utf-8"))
-        except FileNotFoundError:
-            status = None
-        except (ValueError, UnicodeDecodeError):
-            # A status file is written atomically, so a broken one means outside interference.
-            return CaseState("failed", f"step {step}: {status_path.name} is not valid JSON")
-        if status is not None:
-            t = _num(status.get("wall_s", status.get("wall_time")))
-            if t is not None:
-                wall += t
-                have_wall = True
-            word = str(status.get("state", status.get("status", ""))).lower()
-            if word == "running":
-                running.append(step)
-                status = None
-            elif word != "ok" and missing:
-                # A failure recorded after an earlier step that is not done (being rerun) is stale.
-                status = None
-            elif word != "ok":
-                reason = status.get("reason") or f"state {word!r}"
-                code = status.get("exit_code")
-                if code not in (None, 0) and "exit code" not in str(reason):
-                    reason = f"{reason} (exit code {code})"
-                return CaseState("failed", f"step {step}: {reason}", wall if have_wall else None)
-            else:
-                stamp = _stamp(status_path)
-                if stamp:
-                    stamps.append(stamp)
-        done = _stamp(done_path)
-        if status is None or done is None:
-            missing.append(step)
-        else:
-            stamps.append(done)
-    if missing:
-        first = missing[0]
-        if running:
-            reason = f"step {running[0]} running"
-        elif len(missing) == len(steps):
-            reason = "not run yet"
-        else:
-            reason = f"step {first} not finished"
-        return CaseState("pending", reason, wall if have_wall else None)
-    return CaseState("done", "", wall if have_wall else None, tuple(stamps))
+    steps = list(steps)
+    judged = wf.case_state(folder, steps)
+    walls = [w for w in (_num(s.wall_s) for s in judged.steps) if w is not None]
+    wall = float(sum(walls)) if walls else None
+    if judged.status == wf.DONE:
+        state = folder / STATE_DIR
+        stamps = [stamp for step in steps for name in (f"{step}.status.json", f"{step}.done")
+                  if (stamp := _stamp(state / name)) is not None]
+        return CaseState("done", "", wall, tuple(stamps))
+    first = next((s for s in judged.steps if not s.done), None)
+    if first is None:  # no steps at all: nothing says the case ran
+        return CaseState("pending", "no steps", wall)
+    if judged.status == wf.FAILED:
+        reason = first.reason or f"state {first.state!r}"
+        code = (sig.read_json(sig.status_path(str(folder), first.step)) or {}).get("exit_code")
+        if code not in (None, 0) and "exit code" not in str(reason):
+            reason = f"{reason} (exit code {code})"
+        return CaseState("failed", f"step {first.step}: {reason}", wall)
+    if judged.status == wf.RUNNING:
+        return CaseState("pending", f"step {first.step} running", wall)
+    if all(s.state == "none" and not s.done for s in judged.steps):
+        return CaseState("pending", "not run yet", wall)
+    return CaseState("pending", f"step {first.step} not finished", wall)

@@ -120,3 +120,41 @@ def test_fast_confinement_agrees_with_fsutil_confined(tmp_path: Path) -> None:
     real = os.path.realpath(root)
     for p in paths:
         assert outcome(lambda q: inside(real, q), p) == outcome(lambda q: confined(root, q), p), p
+
+
+def test_case_state_is_the_workflows_rule(tmp_path: Path) -> None:
+    """Collection reads a case exactly when ``workflow.state.case_state`` calls it done (DEVELOPERS.md,
+    "Case folders"), also where collection's former rule of its own said otherwise (marked *)."""
+    from studyflow.workflow import state as wf
+
+    ok = {"state": "ok", "exit_code": 0, "wall_s": 1.0}
+    layouts = {
+        # name: ({step: status document or raw text}, steps with a done marker)
+        "both done": ({"solve": ok, "post": ok}, ("solve", "post")),
+        "* marker, no status file": ({"solve": ok}, ("solve", "post")),
+        "* broken status, marker": ({"solve": ok, "post": "{\"state\": "}, ("solve", "post")),
+        "* foreign 'status' key": ({"solve": ok, "post": {"status": "failed", "reason": "x"}}, ("solve",)),
+        "post failed": ({"solve": ok, "post": {"state": "failed", "reason": "exit code 2", "exit_code": 2}}, ("solve",)),
+        "failure marker": ({"solve": {"state": "failed", "reason": "upstream"}}, ("solve",)),
+        "ok, no marker": ({"solve": ok, "post": ok}, ("solve",)),
+        "running": ({"solve": {"state": "running"}}, ()),
+    }
+    expected = {wf.DONE: "done", wf.FAILED: "failed", wf.RUNNING: "pending", wf.PENDING: "pending"}
+    seen = {}
+    for i, (name, (statuses, marked)) in enumerate(layouts.items()):
+        f = tmp_path / f"c{i}"
+        (f / ".studyflow").mkdir(parents=True)
+        for step, doc in statuses.items():
+            text = doc if isinstance(doc, str) else json.dumps(doc)
+            (f / ".studyflow" / f"{step}.status.json").write_text(text)
+        for step in marked:
+            (f / ".studyflow" / f"{step}.done").write_text(json.dumps({"signature": "0" * 64}))
+        ours = case_state(f, ["solve", "post"])
+        assert ours.status == expected[wf.case_state(f, ["solve", "post"]).status], name
+        seen[name] = ours
+    assert seen["* marker, no status file"].status == "done"
+    assert ("post.done", ) == tuple(s[0] for s in seen["* marker, no status file"].stamps if s[0].startswith("post"))
+    assert seen["* foreign 'status' key"].reason == "step post not finished"
+    assert seen["post failed"].reason == "step post: exit code 2"
+    assert seen["failure marker"].reason == "step solve: upstream"
+    assert seen["ok, no marker"].reason == "step post not finished"
