@@ -23,7 +23,8 @@ from typing import TYPE_CHECKING, Any
 _WHERE = {
     "CaseRecord": "case", "collect_case": "case", "judge_converged": "case", "read_quantity": "case",
     "CaseInfo": "caseinfo", "check_quantities": "check", "ENTRY_POINT_GROUP": "registry",
-    "Collector": "registry", "read_results": "store", "write_tables": "store", "collect_study": "study",
+    "Collector": "registry", "read_results": "store", "read_table": "store", "table_file": "store",
+    "write_tables": "store", "collect_study": "study",
     "ResultTables": "tables", "QuantityResult": "values", "ReadFailure": "values", "Reading": "values",
 }
 
@@ -34,7 +35,7 @@ if TYPE_CHECKING:
     from .caseinfo import CaseInfo
     from .check import check_quantities
     from .registry import ENTRY_POINT_GROUP, Collector
-    from .store import read_results, write_tables
+    from .store import read_results, read_table, table_file, write_tables
     from .study import collect_study
     from .tables import ResultTables
     from .values import QuantityResult, ReadFailure, Reading

@@ -36,11 +36,11 @@ class CaseState:
 
 def step_state(case_dir: Path, step: str) -> StepState:
     d = str(case_dir)
-    import os
-
     st = sig.read_json(sig.status_path(d, step)) or {}
-    # A marker beside a failed status is a cluster batch's failure marker, not a finished step.
-    done = os.path.exists(sig.marker_path(d, step)) and st.get("state") != "failed"
+    # Done means a marker with a signature (what the step runner writes last); a cluster batch's
+    # failure marker has none, and a failed status beside a marker means the same.
+    marker = sig.read_json(sig.marker_path(d, step))
+    done = bool(marker and marker.get("signature")) and st.get("state") != "failed"
     return StepState(step, st.get("state", "none"), done, st.get("reason"), st.get("wall_s"), st.get("started_at"))
 
 

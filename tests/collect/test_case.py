@@ -80,7 +80,9 @@ def test_case_state_from_markers(tmp_path: Path) -> None:
     _status(f, "solve", "ok", wall_s=2.0)
     # ok status without its done marker: the step was interrupted after writing its outputs.
     assert case_state(f, ["solve"]).status == "pending"
-    (f / ".studyflow" / "solve.done").write_text("{}")
+    (f / ".studyflow" / "solve.done").write_text("{}")  # no signature: not what the step runner writes
+    assert case_state(f, ["solve"]).status == "pending"
+    (f / ".studyflow" / "solve.done").write_text(json.dumps({"signature": "0" * 64}))
     assert case_state(f, ["solve"]).status == "done"
     _status(f, "post", "failed", reason="missing output summary.json", exit_code=0)
     s = case_state(f, ["solve", "post"])
