@@ -15,6 +15,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from ..collect.columns import CASE_COLUMNS, RESULT_TAIL
 from ..errors import AnalysisError, InputError, Problem
 from . import verdict as vd
 from .iterative import NEGLIGIBLE, iterative_negligible, monitor_error
@@ -36,8 +37,7 @@ COLUMNS = [
     "gci_fine", "gci_medium", "asymptotic_ratio", "convergence", "R", "method", "U", "u_num",
     "iterative_error", "iterative_ok", "verdict", "reason",
 ]
-TIDY = {"study", "case", "point", "level", "cells", "h", "quantity", "kind", "coord", "value", "unit", "status",
-        "converged", "reason", "row"}
+TIDY = {*CASE_COLUMNS, *RESULT_TAIL, "row"}
 
 # Divisor from the expanded uncertainty U (GCI-like, Fs = 1.25) to a standard uncertainty u_num.
 # From memory: ASME V&V 20-2009 (section 2-4) regards the GCI with Fs = 1.25 as roughly 95 %

@@ -16,10 +16,10 @@ from ..design import mesh_dim as design_mesh_dim
 from ..errors import CollectError, Problem
 from ..spec.quantities import QUANTITY_NAME, QuantitySpec
 from . import registry
+from .columns import RESERVED
 
 # Columns of the results table a parameter or quantity must not shadow.
-RESERVED_COLUMNS = ("study", "case", "point", "level", "cells", "h", "quantity", "kind", "coord", "value",
-                    "unit", "status", "converged", "reason", "iteration")
+RESERVED_COLUMNS = RESERVED
 
 
 @dataclass(frozen=True)

@@ -15,12 +15,10 @@ import pandas as pd
 
 from ..errors import CollectError, Problem
 from ..fsutil import atomic_write_many
+from .columns import TEXT_COLUMNS  # text in every table of results/, even when it looks numeric
 from .tables import ResultTables
 
 RESULTS_DIR = "results"
-# Columns that hold text in every table of results/: read as text from CSV even when every value
-# looks like a number (a point id "3").
-TEXT_COLUMNS = ("study", "case", "point", "quantity", "kind", "unit", "status", "reason")
 # The files of each table write_tables writes, preferred first (Parquet keeps the exact dtypes).
 # Tables written by other layers (uncertainty) have both formats.
 _FILES = {"results": (".parquet", ".csv"), "histories": (".parquet", ".csv"), "cases": (".csv",)}

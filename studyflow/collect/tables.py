@@ -17,10 +17,7 @@ import pandas as pd
 from .case import CaseRecord
 from .check import Bound
 
-CASE_COLUMNS = ("study", "case", "point", "level")
-RESULT_TAIL = ("cells", "h", "quantity", "kind", "coord", "value", "unit", "status", "converged", "reason")
-HISTORY_COLUMNS = ("study", "case", "point", "level", "quantity", "iteration", "value")
-CASES_TAIL = ("cells", "h", "status", "reason", "wall_time", "iterations", "converged")
+from .columns import CASE_COLUMNS, CASES_TAIL, HISTORY_COLUMNS, RESULT_TAIL  # noqa: F401  (re-exported)
 
 
 @dataclass(frozen=True)
