@@ -195,19 +195,30 @@ class EngineStart:
         import subprocess
 
         self.proc = None
+        self.log_path = study.state_dir / RUN_LOG
+        # Its output goes to a file of its own until it gets targets: a run that stops before
+        # (a template error, nothing to run) leaves the last run's log as it was.
+        self.early_log = study.state_dir / (RUN_LOG + ".next")
         if default_cores() < 2:
             return
         ensure_importable()
-        state = study.state_dir
-        state.mkdir(parents=True, exist_ok=True)
+        study.state_dir.mkdir(parents=True, exist_ok=True)
         argv = [sys.executable, str(LAUNCHER), TARGETS_ON_STDIN, *snakemake_argv(study, [], opts)[2:]]
-        with open(state / RUN_LOG, "wb") as log:
+        with open(self.early_log, "wb") as log:
             try:
                 self.proc = subprocess.Popen(argv, cwd=str(study.root), stdout=log, stderr=subprocess.STDOUT,
                                              stdin=subprocess.PIPE, start_new_session=True,
                                              pass_fds=tuple(inherit_fds))
             except OSError:
                 self.proc = None  # run_engine starts it the usual way and reports why it cannot
+        if self.proc is None:
+            self._drop_log()
+
+    def _drop_log(self) -> None:
+        try:
+            self.early_log.unlink()
+        except FileNotFoundError:
+            pass
 
     def go(self, targets: Sequence[str]) -> Any:
         """The started engine, given ``targets``; None when it is gone (then start a new one)."""
@@ -217,10 +228,13 @@ class EngineStart:
         try:
             if proc.poll() is not None:
                 raise OSError("the engine stopped early")
+            # The engine keeps writing to the same open file under its new name.
+            os.replace(self.early_log, self.log_path)
             proc.stdin.write(json.dumps(list(targets)).encode())
             proc.stdin.close()
         except OSError:
             _discard(proc)
+            self._drop_log()
             return None
         return proc
 
@@ -228,6 +242,7 @@ class EngineStart:
         proc, self.proc = self.proc, None
         if proc is not None:
             _discard(proc)
+            self._drop_log()
 
 
 def _discard(proc: Any) -> None:

@@ -83,10 +83,11 @@ def run_study(study: Study, design: Design | None = None, options: EngineOptions
     design = design or build_design(study)
     with RunLock(study.state_dir) as lock:
         fds = (lock.fd,) if lock.fd else ()
-        rendered = render_all(study, design, make_renderer(study, time_limit_s))
-        # The templates are good: the engine can start on another core while the plan is made.
+        # The engine starts on another core while the cases are rendered and planned; if they
+        # stop the run (a template error), it is killed and leaves no file behind.
         start = None if dry else EngineStart(study, options, inherit_fds=fds)
         try:
+            rendered = render_all(study, design, make_renderer(study, time_limit_s))
             return _locked_run(study, design, rendered, options, dry, report, after, fds, start)
         finally:
             if start is not None:
