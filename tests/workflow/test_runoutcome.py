@@ -38,3 +38,18 @@ def test_engine_stopping_before_the_cases_is_a_workflow_error(tmp_path: Path) ->
         api.run(root, cores=2, progress=False, extra_args=["--no-such-snakemake-option"])
     assert "Snakemake stopped with exit code" in str(info.value)
     assert "before running the cases" in str(info.value)
+
+
+def test_template_error_keeps_the_last_run_log_and_leaves_no_engine_file(tmp_path: Path) -> None:
+    from studyflow.errors import TemplateError
+
+    root = steps_study(tmp_path / "s", points=2)
+    api.run(root, cores=2, progress=False, collect=False)
+    log = root / ".studyflow" / "run.log"
+    before = log.read_bytes()
+    assert b"sf_make" in before or b"sf__cases" in before  # the engine's own log of that run
+    (root / "tpl" / "make.sh").write_text("echo {{ no_such_value }}\n")
+    with pytest.raises(TemplateError):
+        api.run(root, cores=2, progress=False)
+    assert log.read_bytes() == before
+    assert not (root / ".studyflow" / "run.log.next").exists()
