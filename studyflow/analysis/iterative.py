@@ -13,6 +13,10 @@ from numpy.typing import ArrayLike, NDArray
 WINDOW_FRACTION = 0.1  # last 10 % of the iterations ...
 WINDOW_MIN = 5  # ... but at least 5 of them
 NEGLIGIBLE = 0.01  # iterative error under 1 % of U counts as negligible (common practice)
+# A residual whose largest value stays below this share of the largest value of another residual
+# of the same case sat at round-off level the whole run (a Newton solver satisfies continuity to
+# machine precision from its first step): its "drop" measures noise, not convergence. Our choice.
+ROUNDOFF_SHARE = 1e-10
 
 _KEYS = ["case", "quantity"]
 
@@ -29,13 +33,16 @@ def residual_summary(histories: pd.DataFrame, residuals: list[str]) -> pd.DataFr
     drop = log10(r_peak / r_final) and normalised final residual = r_final / r_peak, where
     r_peak is the largest recorded value (our documented choice: solvers differ in how they
     normalise, and the first value can be zero, e.g. a continuity imbalance of a uniform start
-    field, while the peak is always a meaningful reference). Columns: ``case, point, level,
-    quantity, iterations, first, peak, final, drop_orders, final_normalised``.
+    field, while the peak is always a meaningful reference). ``roundoff`` marks a residual whose
+    peak is at most ``ROUNDOFF_SHARE`` times the largest peak among the case's residuals: it was
+    at round-off level throughout, and its drop is no measure of convergence. Columns: ``case,
+    point, level, quantity, iterations, first, peak, final, drop_orders, final_normalised,
+    roundoff``.
     """
     h = _ordered(histories, residuals)
     if h.empty:
         return pd.DataFrame(columns=["case", "point", "level", "quantity", "iterations", "first", "peak", "final",
-                                     "drop_orders", "final_normalised"])
+                                     "drop_orders", "final_normalised", "roundoff"])
     g = h.assign(absval=h["value"].abs()).groupby(_KEYS, sort=True)
     out = g.agg(point=("point", "first"), level=("level", "first"), iterations=("iteration", "max"),
                 first=("absval", "first"), peak=("absval", "max"), final=("absval", "last")).reset_index()
@@ -43,6 +50,8 @@ def residual_summary(histories: pd.DataFrame, residuals: list[str]) -> pd.DataFr
         ratio = out["final"].to_numpy(float) / out["peak"].to_numpy(float)
         out["drop_orders"] = -np.log10(ratio)
     out["final_normalised"] = ratio
+    case_peak = out.groupby("case")["peak"].transform("max").to_numpy(float)
+    out["roundoff"] = out["peak"].to_numpy(float) <= ROUNDOFF_SHARE * case_peak
     return out
 
 

@@ -78,11 +78,14 @@ def uncertainty_text(unc: pd.DataFrame, max_rows: int = 60) -> str:
 
 
 def iterative_text(summary: pd.DataFrame, max_rows: int = 30) -> str:
-    """Residual drop per case and residual, worst first."""
+    """Residual drop per case and residual, worst first; residuals at round-off level the whole
+    run (``roundoff``) come last, marked as such instead of with a drop."""
     if summary.empty:
         return ""
-    s = summary.sort_values("drop_orders", kind="stable").head(max_rows)
-    rows = [[str(r.case), str(r.quantity), str(r.iterations), _g(r.drop_orders, 3), _g(r.final_normalised, 3)]
+    flat = summary["roundoff"].astype(bool) if "roundoff" in summary.columns else pd.Series(False, summary.index)
+    s = summary.assign(at_roundoff=flat).sort_values(["at_roundoff", "drop_orders"], kind="stable").head(max_rows)
+    rows = [[str(r.case), str(r.quantity), str(r.iterations),
+             "at round-off" if r.at_roundoff else _g(r.drop_orders, 3), _g(r.final, 3), _g(r.final_normalised, 3)]
             for r in s.itertuples(index=False)]
     return "\n".join(["residuals (smallest drop first):"] + _grid(
-        ["case", "residual", "iterations", "drop (orders)", "final / first"], rows))
+        ["case", "residual", "iterations", "drop (orders)", "final", "final / peak"], rows))

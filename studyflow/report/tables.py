@@ -24,7 +24,8 @@ def residual_summary(histories: pd.DataFrame | None, residuals: list[str]) -> pd
 
     The per-residual drop log10(r_peak / r_final) is the analysis layer's (``analysis.residual_summary``);
     the case keeps the smallest drop over its residuals (common practice: a case is as converged as its
-    worst-converged equation).
+    worst-converged equation), leaving out residuals that sat at round-off level the whole run
+    (``roundoff``: their drop measures noise) unless every residual of the case did.
     """
     cols = ["case", "iterations", "residual drop [decades]", "final residual"]
     if histories is None or histories.empty:
@@ -32,7 +33,12 @@ def residual_summary(histories: pd.DataFrame | None, residuals: list[str]) -> pd
     per = analysis_residuals(histories.assign(case=histories["case"].astype(str)), list(residuals) or None)
     if per.empty:
         return pd.DataFrame(columns=cols)
-    per = per.replace([np.inf, -np.inf], np.nan).groupby("case")
+    per = per.replace([np.inf, -np.inf], np.nan)
+    if "roundoff" in per.columns:
+        flat = per["roundoff"].astype(bool)
+        all_flat = flat.groupby(per["case"]).transform("all")
+        per = per.assign(drop_orders=per["drop_orders"].where(~flat | all_flat))
+    per = per.groupby("case")
     return pd.DataFrame({
         "case": per.size().index.astype(str),
         "iterations": per["iterations"].max().to_numpy(),

@@ -59,3 +59,24 @@ def test_one_percent_rule():
     # Rule: negligible when under 1 % of U (common practice); unknown -> None.
     ok = iterative_negligible([1e-5, 2e-2, np.nan, 0.0], [1e-2, 1.0, 1.0, 0.0])
     assert list(ok) == [True, False, None, True]
+
+
+def test_residual_at_roundoff_throughout_is_marked_not_ranked():
+    # Newton on (u, v, p) meets continuity to machine precision from its first step: the mass
+    # imbalance sits near 1e-15 while momentum falls 1e-1 -> 1e-11 (arithmetic: 10 orders).
+    h = pd.concat([_hist("a--m0", "mass", np.array([0.0, 2.1e-15, 2.8e-15, 2.0e-15])),
+                   _hist("a--m0", "xmom", np.array([1e-1, 1e-4, 1e-8, 1e-11])),
+                   _hist("b--m0", "mass", np.array([4e-3, 1e-8, 1e-14])),
+                   _hist("b--m0", "xmom", np.array([5e-3, 1e-7, 1e-11]))])
+    out = residual_summary(h, ["mass", "xmom"]).set_index(["case", "quantity"])
+    assert bool(out.loc[("a--m0", "mass"), "roundoff"]) is True
+    assert bool(out.loc[("a--m0", "xmom"), "roundoff"]) is False
+    assert not out.loc["b--m0", "roundoff"].any()  # a mass imbalance that really fell is ranked
+
+    from studyflow.analysis.text import iterative_text
+    from studyflow.report.tables import residual_summary as per_case
+
+    text = iterative_text(residual_summary(h, ["mass", "xmom"]))
+    assert text.splitlines()[-1].split()[:4] == ["a--m0", "mass", "4", "at"]  # listed last, as round-off
+    cases = per_case(h, ["mass", "xmom"]).set_index("case")
+    assert cases.loc["a--m0", "residual drop [decades]"] == pytest.approx(10.0, rel=1e-12)  # momentum's

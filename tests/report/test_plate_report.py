@@ -68,6 +68,10 @@ def test_plate_report_fields_meshes_and_cases(plate):
     hist = pd.read_csv(study / "results" / "histories.csv").sort_values("iteration")
     hist = hist[hist.quantity.isin(["mass_residual", "xmom_residual", "ymom_residual"])]
     drops = hist.groupby(["case", "quantity"])["value"].agg(lambda v: np.log10(v.abs().max() / abs(v.iloc[-1])))
-    expected = drops.groupby(level=0).min()
+    # a residual that stayed at round-off (peak <= 1e-10 x the case's largest peak: the mass imbalance
+    # of a Newton solve from a uniform start) is left out: its "drop" is noise (documented choice)
+    peaks = hist.groupby(["case", "quantity"])["value"].agg(lambda v: v.abs().max())
+    flat = peaks <= 1e-10 * peaks.groupby(level=0).transform("max")
+    expected = drops[~flat].groupby(level=0).min()
     got = cases.set_index("case")["residual drop [decades]"]
     assert got.to_dict() == pytest.approx(expected.to_dict())
