@@ -33,13 +33,8 @@ def is_failure_marker(doc: dict | None) -> bool:
     return bool(doc) and bool(doc.get(FAILED_KEY))
 
 
-def _now() -> str:
-    # time.strftime rather than datetime, as in runstep: one import less on every job's start-up.
-    return time.strftime("%Y-%m-%dT%H:%M:%S+00:00", time.gmtime())
-
-
 def _write_failure(case_dir: str, step: str, reason: str | None) -> None:
-    doc = {FAILED_KEY: True, "signature": None, "reason": reason, "finished": _now(),
+    doc = {FAILED_KEY: True, "signature": None, "reason": reason, "finished": runstep.now_iso(),
            "slurm_job_id": os.environ.get("SLURM_JOB_ID")}
     sig.write_json_atomic(sig.marker_path(case_dir, step), doc)
 
@@ -61,7 +56,7 @@ def run(case_dir: str, step: str) -> int:
         reason = f"upstream step {upstream} failed"
         sig.write_json_atomic(sig.status_path(case_dir, step), {
             "case": os.path.basename(case_dir), "step": step, "state": "failed", "reason": reason,
-            "exit_code": None, "wall_s": 0.0, "started": _now(), "ended": _now(), "started_at": now,
+            "exit_code": None, "wall_s": 0.0, "started": runstep.now_iso(), "ended": runstep.now_iso(), "started_at": now,
             "host": os.uname().nodename, "pid": os.getpid()})
         _write_failure(case_dir, step, reason)
         return 0

@@ -20,7 +20,6 @@ from pathlib import Path
 from typing import Any, Literal
 
 from ..errors import CollectError, Problem, UnsafePathError
-from ..workflow import signature as sig
 from ..workflow import state as wf
 
 STATE_DIR = ".studyflow"
@@ -220,7 +219,7 @@ def case_state(folder: Path, steps: Iterable[str]) -> CaseState:
         return CaseState("pending", "no steps", wall)
     if judged.status == wf.FAILED:
         reason = first.reason or f"state {first.state!r}"
-        code = (sig.read_json(sig.status_path(str(folder), first.step)) or {}).get("exit_code")
+        code = first.exit_code
         if code not in (None, 0) and "exit code" not in str(reason):
             reason = f"{reason} (exit code {code})"
         return CaseState("failed", f"step {first.step}: {reason}", wall)

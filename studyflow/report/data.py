@@ -15,7 +15,7 @@ from typing import Any
 import pandas as pd
 
 from ..collect.store import read_table, table_file
-from ..collect.tables import CASE_COLUMNS, RESULT_TAIL
+from ..collect.columns import CASE_COLUMNS, RESULT_TAIL
 from ..workflow import state as wf
 from .settings import ReportSettings, load_settings
 
@@ -85,11 +85,10 @@ def _rendered_steps(state_dir: Path) -> list[str]:
     return [name for _, name in sorted(found)]
 
 
-def _folder_state(folder: Path, steps: list[str]) -> tuple[str, str, float | None]:
+def _folder_state(st: wf.CaseState) -> tuple[str, str, float | None]:
     """(status, reason, wall time) of a case by the workflow's rule (``workflow.state.case_state``):
     done only when every step has its done marker, failed or running from the first step that is
     not done. The report knows three states; a running case is pending with the reason saying so."""
-    st = wf.case_state(folder, steps)
     walls = [w for w in (_as_float(s.wall_s) for s in st.steps) if w is not None]
     wall = sum(walls) if walls else None  # nothing recorded is no wall time, not zero seconds
     if st.status == wf.DONE:
@@ -131,13 +130,13 @@ def scan_cases(root: Path, steps: list[str]) -> dict[str, CaseState]:
             h=_as_float(info.get("h", mesh.get("h"))),
             folder=folder,
         )
-        state.status, state.reason, state.wall_time = _folder_state(folder, steps or _rendered_steps(meta.parent))
-        status_files = sorted(meta.parent.glob("*.status.json"))
-        statuses = [_read_json(p) for p in status_files]
-        state.status_mtime = _newest_mtime(status_files)
-        starts = sorted(str(d["started"]) for d in statuses if d.get("started"))
-        ends = sorted(str(d["ended"]) for d in statuses if d.get("ended"))
-        state.hosts = tuple(sorted({str(d["host"]) for d in statuses if d.get("host")}))
+        judged = wf.case_state(folder, steps or _rendered_steps(meta.parent))
+        state.status, state.reason, state.wall_time = _folder_state(judged)
+        state.status_mtime = _newest_mtime(sorted(meta.parent.glob("*.status.json")))
+        # times and hosts from the status files the judgement above read (each file read once)
+        starts = sorted(str(s.started) for s in judged.steps if s.started)
+        ends = sorted(str(s.ended) for s in judged.steps if s.ended)
+        state.hosts = tuple(sorted({str(s.host) for s in judged.steps if s.host}))
         state.started = starts[0] if starts else None
         state.ended = ends[-1] if ends else None
         out[state.case] = state

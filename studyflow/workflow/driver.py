@@ -194,7 +194,7 @@ class EngineStart:
     def __init__(self, study: Study, opts: EngineOptions, inherit_fds: Sequence[int] = ()):
         import subprocess
 
-        self.proc = None
+        self.proc: Any = None
         self.log_path = study.state_dir / RUN_LOG
         # Its output goes to a file of its own until it gets targets: a run that stops before
         # (a template error, nothing to run) leaves the last run's log as it was.
@@ -204,15 +204,10 @@ class EngineStart:
         ensure_importable()
         study.state_dir.mkdir(parents=True, exist_ok=True)
         argv = [sys.executable, str(LAUNCHER), TARGETS_ON_STDIN, *snakemake_argv(study, [], opts)[2:]]
-        with open(self.early_log, "wb") as log:
-            try:
-                self.proc = subprocess.Popen(argv, cwd=str(study.root), stdout=log, stderr=subprocess.STDOUT,
-                                             stdin=subprocess.PIPE, start_new_session=True,
-                                             pass_fds=tuple(inherit_fds))
-            except OSError:
-                self.proc = None  # run_engine starts it the usual way and reports why it cannot
-        if self.proc is None:
-            self._drop_log()
+        try:
+            self.proc = _popen_engine(argv, study, self.early_log, inherit_fds, subprocess.PIPE)
+        except OSError:
+            self._drop_log()  # run_engine starts it the usual way and reports why it cannot
 
     def _drop_log(self) -> None:
         try:
@@ -243,6 +238,16 @@ class EngineStart:
         if proc is not None:
             _discard(proc)
             self._drop_log()
+
+
+def _popen_engine(argv: list[str], study: Study, log_path: Path, inherit_fds: Sequence[int], stdin: Any) -> Any:
+    """The engine as the leader of its own process group (so one signal reaches all it started),
+    output to ``log_path``, holding ``inherit_fds`` (the run lock)."""
+    import subprocess
+
+    with open(log_path, "wb") as log:
+        return subprocess.Popen(argv, cwd=str(study.root), stdout=log, stderr=subprocess.STDOUT, stdin=stdin,
+                                start_new_session=True, pass_fds=tuple(inherit_fds))
 
 
 def _discard(proc: Any) -> None:
@@ -285,64 +290,59 @@ def run_engine(study: Study, cases: Sequence[str], opts: EngineOptions,
     else:
         local_batches.clear(state)
         targets = [done_path("", c, last) for c in cases]
+    n_jobs_batched = len(targets) if n_batches else 0
     log_path = state / RUN_LOG
     sig.write_json_atomic(str(state / RULES_INFO), rule_spec(study))
     argv = snakemake_argv(study, targets, opts)
     started = time.time()
-    sig.write_json_atomic(str(state / RUN_INFO), {
-        "started_at": started, "pid": os.getpid(), "cores": cores,
-        "cases": len(cases), "batches": len(targets) if n_batches else 0,
-        "ended_at": None, "returncode": None, "interrupted": False})
     progress = Progress(study, cases)
     say = report or _stderr_reporter()
     interrupted: list[float] = []
 
     proc = start.go(targets) if start is not None else None
-    with open(log_path, "ab" if proc is not None else "wb") as log:
-        if proc is None:
-            try:
-                proc = subprocess.Popen(argv, cwd=str(study.root), stdout=log, stderr=subprocess.STDOUT,
-                                        stdin=subprocess.DEVNULL, start_new_session=True,
-                                        pass_fds=tuple(inherit_fds))
-            except OSError as exc:
-                raise WorkflowError(f"cannot start Snakemake ({argv[0]} {argv[1]}): {exc}") from None
-        pgid = proc.pid
-        info = sig.read_json(str(state / RUN_INFO)) or {}
-        info["engine_pgid"] = pgid  # lets `status` (and tests) find the engine's process group
-        sig.write_json_atomic(str(state / RUN_INFO), info)
-
-        def on_signal(signum, frame):  # noqa: ARG001
-            if not interrupted:
-                interrupted.append(time.time())
-                _killpg(pgid, signal.SIGINT)
-
-        previous = {}
-        for s in (signal.SIGINT, signal.SIGTERM):
-            try:
-                previous[s] = signal.signal(s, on_signal)
-            except ValueError:  # not the main thread: the caller handles signals
-                pass
+    if proc is None:
         try:
-            last_line = 0.0
-            while True:
-                try:
-                    proc.wait(timeout=opts.poll_s)
-                    break
-                except subprocess.TimeoutExpired:
-                    pass
-                if interrupted and time.time() - interrupted[0] > opts.grace_s:
-                    _killpg(pgid, signal.SIGKILL)
-                if opts.progress:
-                    now = time.time()
-                    progress.poll()
-                    if sys.stderr.isatty() or now - last_line >= 10.0:
-                        say(progress.line(now - started), False)
-                        last_line = now
-        finally:
-            for s, h in previous.items():
-                signal.signal(s, h)
-            # Nothing of this run may outlive it (orphaned step runners or solvers).
-            _killpg(pgid, signal.SIGKILL)
+            proc = _popen_engine(argv, study, log_path, inherit_fds, subprocess.DEVNULL)
+        except OSError as exc:
+            raise WorkflowError(f"cannot start Snakemake ({argv[0]} {argv[1]}): {exc}") from None
+    pgid = proc.pid
+    sig.write_json_atomic(str(state / RUN_INFO), {
+        "started_at": started, "pid": os.getpid(), "cores": cores, "cases": len(cases), "batches": n_jobs_batched,
+        "engine_pgid": pgid,  # lets `status` (and tests) find the engine's process group
+        "ended_at": None, "returncode": None, "interrupted": False})
+
+    def on_signal(signum, frame):  # noqa: ARG001
+        if not interrupted:
+            interrupted.append(time.time())
+            _killpg(pgid, signal.SIGINT)
+
+    previous = {}
+    for s in (signal.SIGINT, signal.SIGTERM):
+        try:
+            previous[s] = signal.signal(s, on_signal)
+        except ValueError:  # not the main thread: the caller handles signals
+            pass
+    try:
+        last_line = 0.0
+        while True:
+            try:
+                proc.wait(timeout=opts.poll_s)
+                break
+            except subprocess.TimeoutExpired:
+                pass
+            if interrupted and time.time() - interrupted[0] > opts.grace_s:
+                _killpg(pgid, signal.SIGKILL)
+            if opts.progress:
+                now = time.time()
+                progress.poll()
+                if sys.stderr.isatty() or now - last_line >= 10.0:
+                    say(progress.line(now - started), False)
+                    last_line = now
+    finally:
+        for s, h in previous.items():
+            signal.signal(s, h)
+        # Nothing of this run may outlive it (orphaned step runners or solvers).
+        _killpg(pgid, signal.SIGKILL)
     if opts.after_engine is not None:
         opts.after_engine(study, cases, log_path, started)
     elapsed = time.time() - started
@@ -355,7 +355,7 @@ def run_engine(study: Study, cases: Sequence[str], opts: EngineOptions,
     if n_batches:
         local_batches.clear(state)
     return EngineResult(proc.returncode, bool(interrupted), elapsed, log_path, len(cases),
-                        progress.done, len(progress.failed), len(targets) if n_batches else 0)
+                        progress.done, len(progress.failed), n_jobs_batched)
 
 
 def _stderr_reporter() -> Callable[[str, bool], None]:

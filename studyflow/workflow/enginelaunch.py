@@ -81,10 +81,6 @@ def timers_do_not_hold_exit() -> None:
     threading.Timer = _DaemonTimer  # type: ignore[misc]
 
 
-def hide_executor_plugins() -> None:
-    scan_once(hide_executors=True)
-
-
 def main(argv: list[str]) -> None:
     early = bool(argv) and argv[0] == TARGETS_ON_STDIN
     if early:

@@ -29,10 +29,8 @@ Standard library only, like the step runner.
 
 from __future__ import annotations
 
-import json
 import os
 import sys
-import time
 
 try:
     import _signal as signal
@@ -53,10 +51,6 @@ EXIT_BAD_BATCH = 2
 
 def done_path(batch_file: str) -> str:
     return batch_file[: -len(".json")] + ".done" if batch_file.endswith(".json") else batch_file + ".done"
-
-
-def _note_signal(signum, frame):  # noqa: ARG001
-    runstep.STOP_REQUESTED.append(signum)
 
 
 def run_case(case_dir: str, steps: list[str], retries: int) -> int:
@@ -80,7 +74,7 @@ def run_case(case_dir: str, steps: list[str], retries: int) -> int:
 def run(batch_file: str) -> int:
     try:
         with open(batch_file, encoding="utf-8") as fh:
-            batch = json.load(fh)
+            batch = sig.loads(fh.read())
         cases = [str(c) for c in batch["cases"]]
         steps = [str(s) for s in batch["steps"]]
     except (OSError, ValueError, KeyError, TypeError) as exc:
@@ -90,7 +84,7 @@ def run(batch_file: str) -> int:
     keep_going = bool(batch.get("keep_going", True))
     stop_file = batch.get("stop_file")
     for s in (signal.SIGINT, signal.SIGTERM, signal.SIGHUP):
-        signal.signal(s, _note_signal)
+        signal.signal(s, runstep.defer_signal)
     failed = 0
     for case_dir in cases:
         if runstep.STOP_REQUESTED:
@@ -108,7 +102,7 @@ def run(batch_file: str) -> int:
                 return EXIT_FAILED
     sig.write_json_atomic(done_path(batch_file), {
         "cases": len(cases), "failed": failed,
-        "finished": time.strftime("%Y-%m-%dT%H:%M:%S+00:00", time.gmtime())})
+        "finished": runstep.now_iso()})
     return 0
 
 

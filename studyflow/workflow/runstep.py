@@ -49,11 +49,12 @@ GRACE_S = 5.0
 STOP_REQUESTED: list[int] = []
 
 
-def _defer(signum, frame):  # noqa: ARG001
+def defer_signal(signum, frame):  # noqa: ARG001
+    """Signal handler that only notes the signal in ``STOP_REQUESTED``."""
     STOP_REQUESTED.append(signum)
 
 
-def _now() -> str:
+def now_iso() -> str:
     # time.strftime rather than datetime: one import less on every job's start-up.
     return time.strftime("%Y-%m-%dT%H:%M:%S+00:00", time.gmtime())
 
@@ -171,7 +172,7 @@ def _wait(pid: int, limit: float | None) -> tuple[str, int | None]:
     finally:
         signal.setitimer(signal.ITIMER_REAL, 0)
         for s in (signal.SIGINT, signal.SIGTERM, signal.SIGHUP):
-            signal.signal(s, _defer)  # the status and marker must be written whole now
+            signal.signal(s, defer_signal)  # the status and marker must be written whole now
     if outcome == "timeout":
         _stop(pid, signal.SIGTERM)
     elif outcome == "interrupted":
@@ -201,12 +202,12 @@ def _run(case_dir: str, step: str) -> int:
     marker = sig.marker_path(case_dir, step)
     started_at = time.time()
     status = {"case": os.path.basename(case_dir), "step": step, "state": "running", "reason": None,
-              "exit_code": None, "wall_s": None, "started": _now(), "ended": None,
+              "exit_code": None, "wall_s": None, "started": now_iso(), "ended": None,
               "started_at": started_at, "host": os.uname().nodename, "pid": os.getpid()}
 
     def finish(state: str, reason: str | None, code: int | None, rc: int) -> int:
         status.update(state=state, reason=reason, exit_code=code, wall_s=round(time.time() - started_at, 3),
-                      ended=_now())
+                      ended=now_iso())
         sig.write_json_atomic(status_file, status)
         return rc
 
@@ -285,7 +286,7 @@ def _run(case_dir: str, step: str) -> int:
     command = sig.command_hash(doc)
     done = {"signature": sig.signature(command, shas, upstream_sig), "command": command,
             "upstream": upstream_sig, "params": sig.params_hash(case_doc), "mesh": sig.mesh_hash(case_doc),
-            "reads": reads, "finished": _now()}
+            "reads": reads, "finished": now_iso()}
     rc = finish("ok", None, 0, 0)
     sig.write_json_atomic(marker, done)
     return rc

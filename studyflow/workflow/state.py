@@ -23,6 +23,10 @@ class StepState:
     reason: str | None
     wall_s: float | None
     started_at: float | None
+    exit_code: int | None = None
+    started: str | None = None  # ISO 8601 UTC, as the status file has them
+    ended: str | None = None
+    host: str | None = None
 
 
 @dataclass(frozen=True)
@@ -41,7 +45,8 @@ def step_state(case_dir: Path, step: str) -> StepState:
     # failure marker has none, and a failed status beside a marker means the same.
     marker = sig.read_json(sig.marker_path(d, step))
     done = bool(marker and marker.get("signature")) and st.get("state") != "failed"
-    return StepState(step, st.get("state", "none"), done, st.get("reason"), st.get("wall_s"), st.get("started_at"))
+    return StepState(step, st.get("state", "none"), done, st.get("reason"), st.get("wall_s"), st.get("started_at"),
+                     st.get("exit_code"), st.get("started"), st.get("ended"), st.get("host"))
 
 
 def case_state(case_dir: Path, steps: list[str]) -> CaseState:

@@ -34,7 +34,7 @@ def test_environment_switch_keeps_every_plugin(monkeypatch: pytest.MonkeyPatch) 
 def test_filter_hides_only_executor_plugins(monkeypatch: pytest.MonkeyPatch) -> None:
     monkeypatch.setattr(pkgutil, "iter_modules", pkgutil.iter_modules)  # restored after the test
     before = {m.name for m in pkgutil.iter_modules()}
-    enginelaunch.hide_executor_plugins()
+    enginelaunch.scan_once(hide_executors=True)
     after = {m.name for m in pkgutil.iter_modules()}
     assert not any(n.startswith(enginelaunch.PREFIX) for n in after)
     assert after == {n for n in before if not n.startswith(enginelaunch.PREFIX)}
