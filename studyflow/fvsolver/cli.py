@@ -2,7 +2,9 @@
 
 Exit codes: 0 converged; 2 bad command line; 3 bad case file; 4 iteration limit reached (not
 converged; every output still written); 5 diverged or non-finite (history and metrics kept);
-6 singular Jacobian.
+6 singular Jacobian (or another failure of the sparse LU).
+
+``studyflow-fv --linear-solvers`` lists the sparse LU backends usable on this machine.
 """
 
 from __future__ import annotations
@@ -20,10 +22,17 @@ def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(prog="studyflow-fv",
                                  description="Steady 2D incompressible laminar flow on a MAC mesh (Newton, central "
                                              "differences). Writes fields, metrics and the residual history.")
-    ap.add_argument("case", help="case file (TOML)")
+    ap.add_argument("case", nargs="?", help="case file (TOML)")
     ap.add_argument("--version", action="version", version=f"studyflow-fv {__version__}")
     ap.add_argument("--quiet", action="store_true", help="print only the final line")
+    ap.add_argument("--linear-solvers", action="store_true",
+                    help="list the sparse LU backends and whether each can be used here (prepares MUMPS's "
+                         "shim on first use), then exit")
     args = ap.parse_args(argv)
+    if args.linear_solvers:
+        return _list_linear_solvers()
+    if args.case is None:
+        ap.error("a case file is needed (or --linear-solvers)")
     try:
         cfg = load(args.case)
     except CaseFileError as exc:
@@ -36,7 +45,11 @@ def main(argv: list[str] | None = None) -> int:
             print(line, flush=True)
 
     print(f"studyflow-fv {__version__}: {cfg.kind} case, Re = {cfg.reynolds:g}, mesh {cfg.nx} x {cfg.ny}", flush=True)
-    result = solve(cfg, log)
+    try:
+        result = solve(cfg, log)
+    except CaseFileError as exc:  # a sparse LU backend named in the file is not usable here
+        print(f"studyflow-fv: {exc}", file=sys.stderr)
+        return exc.exit_code
     folder = Path(args.case).resolve().parent
     write(result, folder)
     o = result.outcome
@@ -47,6 +60,18 @@ def main(argv: list[str] | None = None) -> int:
     if result.exit_code:
         print(f"studyflow-fv: {o.status}: {o.message}", file=sys.stderr)
     return result.exit_code
+
+
+def _list_linear_solvers() -> int:
+    from . import linear
+
+    survey = linear.survey()
+    chosen, _ = linear.pick("auto")
+    for name, reason in survey.items():
+        state = "usable" if reason is None else f"not usable: {reason}"
+        mark = "  (auto picks this)" if name == chosen.NAME else ""
+        print(f"{name:8s} {state}{mark}")
+    return 0
 
 
 if __name__ == "__main__":

@@ -11,7 +11,8 @@ Tables and keys (defaults in brackets):
               cell of each stretched segment (1 = uniform)
     [solve]   tolerance [1e-10], max_iterations [40], update_tolerance [0 = not used],
               chord [true], coarse_levels [-1 = automatic], divergence_limit [1e6],
-              ramp [[]]: lower Reynolds numbers solved first on the coarsest mesh (continuation)
+              ramp [[]]: lower Reynolds numbers solved first on the coarsest mesh (continuation),
+              linear_solver ["auto" | "mumps" | "superlu"]: sparse LU backend (auto: MUMPS if usable)
     [output]  fields ["fields.vtu"], metrics ["metrics.json"], history ["history.csv"]
     [plate]   stations [0.1 .. 1.0], profile_stations [[0.5]]
     [channel] profile_station [0.8], gradient_from [0.6], gradient_to [0.9]  (fractions of length)
@@ -26,6 +27,7 @@ from pathlib import Path
 from typing import Any
 
 from .errors import CaseFileError, Issue
+from .linear import CHOICES as LINEAR_SOLVERS
 
 KINDS = ("plate", "cavity", "channel", "mms", "step")
 
@@ -51,6 +53,7 @@ class CaseConfig:
     coarse_levels: int = -1
     divergence_limit: float = 1e6
     ramp: tuple[float, ...] = ()
+    linear_solver: str = "auto"
     fields: str = "fields.vtu"
     metrics: str = "metrics.json"
     history: str = "history.csv"
@@ -196,6 +199,7 @@ def parse(data: dict, file: str = "<case>") -> CaseConfig:
     coarse = r.get("solve", "coarse_levels", -1, "int", min=-1, max=8)
     div = r.get("solve", "divergence_limit", 1e6, "pos", min=1.0)
     ramp = r.get("solve", "ramp", [], "ramp")
+    linear_solver = r.get("solve", "linear_solver", "auto", "str", choices=LINEAR_SOLVERS)
     if isinstance(ramp, list) and isinstance(re_, float) and any(v >= re_ for v in ramp):
         r.issues.append(Issue(file, "solve.ramp", ramp, f"every step must be below case.reynolds = {re_:g}"))
     fields_ = r.get("output", "fields", "fields.vtu", "file")
@@ -205,4 +209,4 @@ def parse(data: dict, file: str = "<case>") -> CaseConfig:
     if r.issues:
         raise CaseFileError(r.issues)
     return CaseConfig(file, kind, re_, nx, ny, sx, sy, domain, tol, maxit, utol, chord, coarse, div,
-                      tuple(float(v) for v in ramp), fields_, metrics, history, extra)
+                      tuple(float(v) for v in ramp), linear_solver, fields_, metrics, history, extra)

@@ -1,4 +1,4 @@
-"""Exit codes and the one exception type of the bundled solver.
+"""Exit codes and the exception types of the bundled solver.
 
 The solver is its own program, so it does not use studyflow's exception types; its input
 errors carry the same information (file, key, value, message).
@@ -49,3 +49,15 @@ class CaseFileError(Exception):
         if len(self.issues) == 1:
             return str(self.issues[0])
         return "invalid case file:\n" + "\n".join(f"  - {i}" for i in self.issues)
+
+
+class LinearSolverError(Exception):
+    """A sparse LU backend could not factorise or solve."""
+
+
+class SingularJacobian(LinearSolverError):
+    """The Jacobian is (numerically) singular: the Newton step does not exist."""
+
+
+class BackendUnavailable(LinearSolverError):
+    """A sparse LU backend cannot be used on this machine; the message says why."""

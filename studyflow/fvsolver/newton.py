@@ -16,31 +16,27 @@ Chord steps: once an iteration cuts the largest imbalance by more than 20x, the 
 reuses the last LU factorisation (a chord / simplified-Newton step, Kelley, "Solving Nonlinear
 Equations with Newton's Method", SIAM 2003, ch. 5); a chord step that cuts it by less than 1/0.3 triggers a fresh factorisation.
 
-The unknowns are factorised in an order sorted by position (rows of the mesh, u, v, p of a
-cell together), which gives less fill than the u-v-p block order under the COLAMD column
-ordering (measured: about 15 % fewer LU entries).
+Each full step is one sparse LU of the Jacobian by the backend the case file picks
+(``linear/``: MUMPS where the system has it, SuperLU otherwise). The backend gets a hint order
+sorted by position (rows of the mesh, u, v, p of a cell together), which SuperLU factorises in.
 """
 
 from __future__ import annotations
 
 import time
 from dataclasses import dataclass, field
+from types import ModuleType
 from typing import Callable
 
 import numpy as np
-import scipy.sparse.linalg as spla
-
+from . import linear
 from .discretise import Discrete
+from .errors import LinearSolverError
 from .grid import Grid
 
 COLUMNS = ("iteration", "mass_imbalance", "xmom_imbalance", "ymom_imbalance", "newton_update",
            "factorised", "seconds")
 
-# Threshold partial pivoting: a diagonal entry at least 0.1 x the largest in its column is kept
-# as the pivot (1.0 would be plain partial pivoting). 0.1 is the usual sparse-LU compromise between
-# stability and fill (from memory: the default of several sparse direct solvers); on the
-# 256 x 128 plate it cuts the factorisation's CPU time by about 8 %, with the same iterations.
-PIVOT_THRESHOLD = 0.1
 FAST = 0.05  # an iteration this much faster than the last lets the next one reuse the LU
 SLOW = 0.3  # a chord step slower than this asks for a fresh LU (an LU costs some 20-50 solves)
 
@@ -77,16 +73,30 @@ def position_order(nx: int, ny: int) -> np.ndarray:
 
 def newton(d: Discrete, x0: np.ndarray, *, tolerance: float, max_iterations: int, update_tolerance: float = 0.0,
            chord: bool = True, divergence_limit: float = 1e6, u_ref: float = 1.0, h_ref: float = 1.0,
-           log: Callable[[str], None] = print, label: str = "") -> Outcome:
-    """Solve R(x) = 0 from x0; every iterate's imbalances go to ``history`` and ``log``."""
-    sys_ = d.system
+           log: Callable[[str], None] = print, label: str = "", backend: ModuleType = linear.superlu) -> Outcome:
+    """Solve R(x) = 0 from x0; every iterate's imbalances go to ``history`` and ``log``.
+
+    ``backend`` is a module of ``linear`` (its ``Factoriser`` makes the LU of each full step).
+    """
     lay = d.layout
     n_vel = lay.n - lay.nx * lay.ny
     scale = np.concatenate([np.full(n_vel, 1.0 / u_ref), np.full(lay.nx * lay.ny, 1.0 / u_ref**2)])
     x = x0.copy()
-    perm = position_order(lay.nx, lay.ny)
+    lu = backend.Factoriser(position_order(lay.nx, lay.ny))
+    try:
+        return _iterate(d, x, lu, scale, tolerance=tolerance, max_iterations=max_iterations,
+                        update_tolerance=update_tolerance, chord=chord, divergence_limit=divergence_limit,
+                        u_ref=u_ref, h_ref=h_ref, log=log, label=label)
+    finally:
+        lu.close()
+
+
+def _iterate(d: Discrete, x: np.ndarray, lu, scale: np.ndarray, *, tolerance: float, max_iterations: int,
+             update_tolerance: float, chord: bool, divergence_limit: float, u_ref: float, h_ref: float,
+             log: Callable[[str], None], label: str) -> Outcome:
+    sys_ = d.system
     out = Outcome(x, "not_converged")
-    lu = None
+    factored = False
     reuse = False
     prev = None
     update = float("nan")
@@ -119,20 +129,18 @@ def newton(d: Discrete, x0: np.ndarray, *, tolerance: float, max_iterations: int
             break
         if prev is not None:
             ratio = worst / max(prev, 1e-300)
-            reuse = chord and lu is not None and (ratio < FAST if fresh else ratio < SLOW)
+            reuse = chord and factored and (ratio < FAST if fresh else ratio < SLOW)
         fresh = not reuse
         t1 = time.perf_counter()
-        if fresh:
-            lu = None  # free the old factors before making new ones
-            try:
-                lu = spla.splu(sys_.jacobian(x)[perm][:, perm].tocsc(), permc_spec="COLAMD",
-                               diag_pivot_thresh=PIVOT_THRESHOLD)
-            except RuntimeError as exc:  # SuperLU reports an exactly singular matrix this way
-                out.status, out.message = "singular", f"sparse LU failed at iteration {it}: {exc}"
-                break
-            out.factorisations += 1
-        dx = np.empty_like(x)
-        dx[perm] = lu.solve(-r[perm])
+        try:
+            if fresh:
+                lu.factor(sys_.jacobian(x))
+                factored = True
+                out.factorisations += 1
+            dx = lu.solve(-r)
+        except LinearSolverError as exc:
+            out.status, out.message = "singular", f"sparse LU failed at iteration {it}: {exc}"
+            break
         out.linear_seconds += time.perf_counter() - t1
         update = float(np.max(np.abs(dx) * scale))
         x = x + dx

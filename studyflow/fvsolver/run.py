@@ -10,11 +10,12 @@ from typing import Callable
 
 import numpy as np
 
-from . import __version__, metrics, output
+from . import __version__, linear, metrics, output
 from .cases import Problem, auto_levels, build, coarser
 from .config import CaseConfig
 from .discretise import Layout, discretise
-from .errors import EXIT_CONVERGED, EXIT_DIVERGED, EXIT_LINEAR, EXIT_NOT_CONVERGED
+from .errors import (EXIT_CONVERGED, EXIT_DIVERGED, EXIT_LINEAR, EXIT_NOT_CONVERGED, BackendUnavailable,
+                     CaseFileError, Issue)
 from .newton import COLUMNS, Outcome, interpolate, newton
 
 EXIT_FOR = {"converged": EXIT_CONVERGED, "not_converged": EXIT_NOT_CONVERGED, "diverged": EXIT_DIVERGED,
@@ -34,7 +35,7 @@ class Result:
         return EXIT_FOR[self.outcome.status]
 
 
-def _solve_one(cfg: CaseConfig, start, log, label) -> tuple[Problem, Outcome]:
+def _solve_one(cfg: CaseConfig, start, log, label, backend) -> tuple[Problem, Outcome]:
     prob = build(cfg)
     d = discretise(prob.grid, prob.bounds, prob.nu, prob.source_u, prob.source_v, prob.pin_level)
     if start is None:
@@ -44,19 +45,29 @@ def _solve_one(cfg: CaseConfig, start, log, label) -> tuple[Problem, Outcome]:
     x0 = np.concatenate([u0.ravel(), v0.ravel(), p0.ravel()])
     out = newton(d, x0, tolerance=cfg.tolerance, max_iterations=cfg.max_iterations,
                  update_tolerance=cfg.update_tolerance, chord=cfg.chord, divergence_limit=cfg.divergence_limit,
-                 h_ref=prob.h_ref, log=log, label=label)
+                 h_ref=prob.h_ref, log=log, label=label, backend=backend)
     return prob, out
 
 
 def _stage(cfg: CaseConfig, out: Outcome) -> dict:
     """One entry of ``metrics.json``'s ``sequence``: a mesh (and Reynolds number) solved on the way."""
     return {"nx": cfg.nx, "ny": cfg.ny, "reynolds": cfg.reynolds, "iterations": out.iterations,
-            "factorisations": out.factorisations, "status": out.status}
+            "factorisations": out.factorisations, "linear_seconds": round(out.linear_seconds, 4),
+            "status": out.status}
 
 
 def solve(cfg: CaseConfig, log: Callable[[str], None] = print) -> Result:
-    """Solve the case, first on coarser meshes when ``coarse_levels`` asks for it."""
+    """Solve the case, first on coarser meshes when ``coarse_levels`` asks for it.
+
+    Raises ``CaseFileError`` (before computing anything) when the case file names a sparse LU
+    backend that cannot be used on this machine.
+    """
     t0 = time.perf_counter()
+    try:
+        backend, note = linear.pick(cfg.linear_solver)
+    except BackendUnavailable as exc:
+        raise CaseFileError(Issue(cfg.path, "solve.linear_solver", cfg.linear_solver,
+                                  f"{exc} (\"auto\" or \"superlu\" work everywhere)")) from exc
     levels = auto_levels(cfg) if cfg.coarse_levels < 0 else cfg.coarse_levels
     chain = [cfg]
     for _ in range(levels):
@@ -77,11 +88,11 @@ def solve(cfg: CaseConfig, log: Callable[[str], None] = print) -> Result:
         if k == 0:
             for re_k in cfg.ramp:  # continuation in Reynolds number on the coarsest mesh
                 ck = dataclasses.replace(c, reynolds=re_k, tolerance=max(cfg.tolerance, 1e-5), update_tolerance=0.0)
-                pk, ok = _solve_one(ck, start, log, f"[{c.nx}x{c.ny} Re {re_k:g}] ")
+                pk, ok = _solve_one(ck, start, log, f"[{c.nx}x{c.ny} Re {re_k:g}] ", backend)
                 sequence.append(_stage(ck, ok))
                 if ok.status in ("converged", "not_converged"):
                     start = (pk.grid, Layout(pk.grid.nx, pk.grid.ny).split(ok.x))
-        prob, out = _solve_one(c, start, log, label)
+        prob, out = _solve_one(c, start, log, label, backend)
         sequence.append(_stage(c, out))
         if out.status in ("diverged", "singular") and not last:
             log(f"{label}coarse start failed ({out.message}); starting the next mesh from the default field")
@@ -95,7 +106,8 @@ def solve(cfg: CaseConfig, log: Callable[[str], None] = print) -> Result:
     names = COLUMNS[1:4]
     info = {
         "solver": {"name": "studyflow-fv", "version": __version__,
-                   "scheme": "MAC grid, second-order central convection and diffusion, Newton on (u, v, p)"},
+                   "scheme": "MAC grid, second-order central convection and diffusion, Newton on (u, v, p)",
+                   "linear_solver": backend.NAME, **({"linear_solver_note": note} if note else {})},
         "case": {"kind": cfg.kind, "reynolds": cfg.reynolds, "nx": cfg.nx, "ny": cfg.ny, "file": cfg.path},
         "cells": prob.grid.cells,
         "status": out.status,
@@ -104,6 +116,7 @@ def solve(cfg: CaseConfig, log: Callable[[str], None] = print) -> Result:
         "iterations": out.iterations,
         "factorisations": sum(s["factorisations"] for s in sequence),
         "wall_time_s": wall,
+        "linear_seconds": sum(s["linear_seconds"] for s in sequence),
         "residuals": {"initial": dict(zip(names, first[1:4])), "final": dict(zip(names, final[1:4])),
                       "tolerance": cfg.tolerance},
         "sequence": sequence,
