@@ -1,10 +1,15 @@
 """Derived quantities of a converged field, per case kind (all in reference units).
 
-Wall shear is the tangential stress of the fluid on the wall per unit density, from the
-one-sided second-order gradient through the wall value and the first two interior nodes:
-for u(0) = 0 (or the wall speed g) and nodes at d0, d1,
+Wall shear is the shear stress at the wall per unit density in the mesh's axes: nu du/dy on
+the south and north sides, nu dv/dx on the west and east sides. So a flow along +x that is
+attached has tau > 0 on a south wall and tau < 0 on a north wall, and a sign change marks a
+separation or a reattachment. The normal derivative is the one-sided second-order gradient
+through the wall value and the first two interior nodes: for u(0) = 0 (or the wall speed g)
+and nodes at distances d0, d1 from the wall,
 
-    du/dn|_wall = [(u0 - g) d1^2 - (u1 - g) d0^2] / (d0 d1 (d1 - d0))      (quadratic fit).
+    du/dn|_wall = [(u0 - g) d1^2 - (u1 - g) d0^2] / (d0 d1 (d1 - d0))      (quadratic fit),
+
+with n pointing into the fluid, so du/dy = -du/dn on a north wall.
 
 Skin-friction coefficient Cf = tau_w / (U^2 / 2); drag coefficient C_D = (1/L) int_0^L Cf dx,
 summed over the wall share of each u control volume inside [0, L].
@@ -210,7 +215,9 @@ def _sign_changes(x: np.ndarray, tau: np.ndarray) -> list[tuple[float, int]]:
 
 def step(prob: Problem, u: np.ndarray, v: np.ndarray, p: np.ndarray) -> dict[str, Any]:
     """Backward-facing step: where the separated flow behind the step reattaches on the lower wall
-    (wall shear back to positive), and the bubble on the upper wall, if there is one."""
+    (nu du/dy back to positive), and the bubble on the upper wall, if there is one: there
+    attached flow has nu du/dy < 0, so separation is the first change to positive and
+    reattachment the next change back."""
     shear = wall_shear(prob, u, v)
     lo, hi = shear["south"], shear["north"]
     down = _sign_changes(lo["s"], lo["tau"])
@@ -221,8 +228,8 @@ def step(prob: Problem, u: np.ndarray, v: np.ndarray, p: np.ndarray) -> dict[str
     if ups:
         reattach = ups[-1] if lo["tau"][-1] > 0 else ups[0]
     top = _sign_changes(hi["s"], hi["tau"])
-    sep = next((x for x, d in top if d < 0), float("nan"))
-    att = next((x for x, d in top if d > 0 and x > sep), float("nan")) if np.isfinite(sep) else float("nan")
+    sep = next((x for x, d in top if d > 0), float("nan"))
+    att = next((x for x, d in top if d < 0 and x > sep), float("nan")) if np.isfinite(sep) else float("nan")
     return {
         "reattachment_length": reattach,
         "upper_separation": sep,
