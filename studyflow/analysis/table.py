@@ -8,6 +8,7 @@ the vectorised functions of ``richardson`` and ``leastsquares`` in one call.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
 from typing import Any
@@ -58,6 +59,9 @@ class Settings:
     negligible: float = NEGLIGIBLE
     rtol: float = DEFAULT_RTOL
     weighted: bool = False  # least squares: also try the weighted fits (Eca & Hoekstra 2014)
+    # iterative error from the last ``window`` iterations of a monitored history; None: the
+    # default rule of ``iterative.monitor_error`` (last 10 %, at least 5)
+    window: int | None = None
 
 
 def _problems_frame_to_error(problems: list[Problem], source: str) -> AnalysisError:
@@ -175,7 +179,7 @@ def _py(value: object) -> object:
 
 
 def _noise(good: pd.DataFrame, histories: pd.DataFrame | None, monitors: Mapping[str, str] | None,
-           residuals: Sequence[str]) -> pd.Series:
+           residuals: Sequence[str], window: int | None = None) -> pd.Series:
     """Per-row iterative-error estimate of the row's quantity from its monitored history (NaN if none)."""
     if histories is None or histories.empty or "case" not in good.columns:
         return pd.Series(np.nan, index=good.index)
@@ -186,7 +190,9 @@ def _noise(good: pd.DataFrame, histories: pd.DataFrame | None, monitors: Mapping
             mapping[q] = q
     if not mapping:
         return pd.Series(np.nan, index=good.index)
-    errs = monitor_error(histories, list(set(mapping.values())))
+    chosen = list(set(mapping.values()))
+    errs = monitor_error(histories, chosen) if window is None else \
+        monitor_error(histories, chosen, fraction=0.0, minimum=window)
     key = pd.MultiIndex.from_arrays([good["case"].astype(str), good["quantity"].map(mapping)])
     lookup = pd.Series(errs["iterative_error"].to_numpy(float),
                        index=pd.MultiIndex.from_arrays([errs["case"].astype(str), errs["quantity"].astype(str)]))
@@ -246,7 +252,7 @@ def assess(
     if formal_order is not None:
         s = replace(s, formal_order=float(formal_order))
     good, groups, _ = prepare(results, dim=dim, measure=measure, source=source, strict=strict)
-    good = good.assign(noise=_noise(good, histories, monitors, residuals))
+    good = good.assign(noise=_noise(good, histories, monitors, residuals, s.window))
     good = good.iloc[np.lexsort((good["h"].to_numpy(float), good["gid"].to_numpy()))]  # by group, finest first
     n_groups = len(groups)
     nan = lambda: np.full(n_groups, np.nan)
@@ -348,11 +354,36 @@ def _from_study(study: Any, s: Settings, residuals: Sequence[str], monitors: Map
         changes["formal_order"] = float(analysis.formal_order)
     if analysis is not None and analysis.safety_factor is not None:
         changes["fs"] = float(analysis.safety_factor)
-    for key in ("coverage", "order_tolerance", "negligible"):
-        if extra.get(key) is not None:
-            changes[key] = float(extra[key])
+    file = str(getattr(study, "file", "study.yaml"))
+    bad: list[Problem] = []
+    for key, lo, hi in (("coverage", 0.0, math.inf), ("order_tolerance", 0.0, 10.0), ("negligible", 0.0, 1.0)):
+        v = extra.get(key)
+        if v is None:
+            continue
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not lo < v <= hi:
+            bad.append(Problem(file, f"analysis.{key}", v, f"must be a number above {lo:g}"
+                               + (f" and at most {hi:g}" if math.isfinite(hi) else "")))
+        else:
+            changes[key] = float(v)
     if extra.get("weighted") is not None:
-        changes["weighted"] = bool(extra["weighted"])
+        if not isinstance(extra["weighted"], bool):
+            bad.append(Problem(file, "analysis.weighted", extra["weighted"], "must be true or false"))
+        else:
+            changes["weighted"] = extra["weighted"]
+    window = extra.get("iterative_window")
+    if window is not None:
+        if isinstance(window, bool) or not isinstance(window, int) or window < 2:
+            bad.append(Problem(file, "analysis.iterative_window", window,
+                               "must be a whole number of iterations, 2 or more"))
+        else:
+            changes["window"] = window
+    monitors_given = extra.get("monitors")
+    if monitors_given is not None and not (isinstance(monitors_given, Mapping)
+                                           and all(isinstance(v, str) for v in monitors_given.values())):
+        bad.append(Problem(file, "analysis.monitors", monitors_given,
+                           "must map result quantities to the names of their monitored histories"))
+    if bad:
+        raise InputError(bad)
     iteration = getattr(study, "iteration", None)
     if not residuals and iteration is not None:
         residuals = list(iteration.residuals)

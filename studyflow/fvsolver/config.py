@@ -13,7 +13,8 @@ Tables and keys (defaults in brackets):
               chord [true], coarse_levels [-1 = automatic], divergence_limit [1e6],
               ramp [[]]: lower Reynolds numbers solved first on the coarsest mesh (continuation),
               linear_solver ["auto" | "mumps" | "superlu"]: sparse LU backend (auto: MUMPS if usable)
-    [output]  fields ["fields.vtu"], metrics ["metrics.json"], history ["history.csv"]
+    [output]  fields ["fields.vtu"], metrics ["metrics.json"], history ["history.csv"],
+              monitors ["monitors.csv"]
     [plate]   stations [0.1 .. 1.0], profile_stations [[0.5]]
     [channel] profile_station [0.8], gradient_from [0.6], gradient_to [0.9]  (fractions of length)
 """
@@ -57,6 +58,7 @@ class CaseConfig:
     fields: str = "fields.vtu"
     metrics: str = "metrics.json"
     history: str = "history.csv"
+    monitors: str = "monitors.csv"
     extra: dict[str, Any] = field(default_factory=dict)
 
 
@@ -205,8 +207,9 @@ def parse(data: dict, file: str = "<case>") -> CaseConfig:
     fields_ = r.get("output", "fields", "fields.vtu", "file")
     metrics = r.get("output", "metrics", "metrics.json", "file")
     history = r.get("output", "history", "history.csv", "file")
+    monitors = r.get("output", "monitors", "monitors.csv", "file")
     r.unknown_keys()
     if r.issues:
         raise CaseFileError(r.issues)
     return CaseConfig(file, kind, re_, nx, ny, sx, sy, domain, tol, maxit, utol, chord, coarse, div,
-                      tuple(float(v) for v in ramp), linear_solver, fields_, metrics, history, extra)
+                      tuple(float(v) for v in ramp), linear_solver, fields_, metrics, history, monitors, extra)

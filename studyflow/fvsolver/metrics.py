@@ -241,3 +241,32 @@ def step(prob: Problem, u: np.ndarray, v: np.ndarray, p: np.ndarray) -> dict[str
 
 
 KIND = {"plate": plate, "cavity": cavity, "channel": channel, "mms": mms, "step": step}
+
+# The scalar metrics of each kind that ``monitors.csv`` follows iteration by iteration (key paths
+# into the metrics dict): the history from which an iterative-error estimate of each is made.
+MONITORS = {
+    "plate": ("drag.cd",),
+    "cavity": ("vortex.psi_min", "vortex.x", "vortex.y", "u_min", "v_min", "v_max"),
+    "channel": ("pressure_gradient", "centreline_velocity", "development_length"),
+    "mms": ("errors.u.l2", "errors.v.l2", "errors.p.l2"),
+    "step": ("reattachment_length", "upper_separation", "upper_reattachment"),
+}
+
+
+def _at(data: dict, path: str) -> Any:
+    for part in path.split("."):
+        data = data[part]
+    return data
+
+
+def monitored(prob: Problem, u: np.ndarray, v: np.ndarray, p: np.ndarray) -> dict[str, float]:
+    """The kind's ``MONITORS`` values for one iterate; NaN where an unconverged field has none."""
+    keys = MONITORS[prob.config.kind]
+    try:
+        with np.errstate(all="ignore"):
+            found = KIND[prob.config.kind](prob, u, v, p)
+        return {k: float(_at(found, k)) for k in keys}
+    except (ArithmeticError, ValueError, IndexError, KeyError, np.linalg.LinAlgError):
+        # an early iterate can be far from any flow (no boundary-layer edge, no vortex): the
+        # history records that as missing rather than stopping the run
+        return {k: float("nan") for k in keys}

@@ -49,6 +49,7 @@ class Outcome:
     factorisations: int = 0
     linear_seconds: float = 0.0
     message: str = ""
+    monitors: list[dict[str, float]] = field(default_factory=list)  # one per history row, if watched
 
     @property
     def iterations(self) -> int:
@@ -73,10 +74,12 @@ def position_order(nx: int, ny: int) -> np.ndarray:
 
 def newton(d: Discrete, x0: np.ndarray, *, tolerance: float, max_iterations: int, update_tolerance: float = 0.0,
            chord: bool = True, divergence_limit: float = 1e6, u_ref: float = 1.0, h_ref: float = 1.0,
-           log: Callable[[str], None] = print, label: str = "", backend: ModuleType = linear.superlu) -> Outcome:
+           log: Callable[[str], None] = print, label: str = "", backend: ModuleType = linear.superlu,
+           watch: Callable[[np.ndarray], dict[str, float]] | None = None) -> Outcome:
     """Solve R(x) = 0 from x0; every iterate's imbalances go to ``history`` and ``log``.
 
-    ``backend`` is a module of ``linear`` (its ``Factoriser`` makes the LU of each full step).
+    ``backend`` is a module of ``linear`` (its ``Factoriser`` makes the LU of each full step);
+    ``watch``, if given, maps every iterate to the values recorded in ``monitors``.
     """
     lay = d.layout
     n_vel = lay.n - lay.nx * lay.ny
@@ -86,14 +89,15 @@ def newton(d: Discrete, x0: np.ndarray, *, tolerance: float, max_iterations: int
     try:
         return _iterate(d, x, lu, scale, tolerance=tolerance, max_iterations=max_iterations,
                         update_tolerance=update_tolerance, chord=chord, divergence_limit=divergence_limit,
-                        u_ref=u_ref, h_ref=h_ref, log=log, label=label)
+                        u_ref=u_ref, h_ref=h_ref, log=log, label=label, watch=watch)
     finally:
         lu.close()
 
 
 def _iterate(d: Discrete, x: np.ndarray, lu, scale: np.ndarray, *, tolerance: float, max_iterations: int,
              update_tolerance: float, chord: bool, divergence_limit: float, u_ref: float, h_ref: float,
-             log: Callable[[str], None], label: str) -> Outcome:
+             log: Callable[[str], None], label: str,
+             watch: Callable[[np.ndarray], dict[str, float]] | None) -> Outcome:
     sys_ = d.system
     out = Outcome(x, "not_converged")
     factored = False
@@ -107,6 +111,8 @@ def _iterate(d: Discrete, x: np.ndarray, lu, scale: np.ndarray, *, tolerance: fl
         r = sys_.residual(x)
         m = norms(d, r, u_ref, h_ref)
         out.history.append((it, *m, update, int(fresh), time.perf_counter() - t0))
+        if watch is not None:
+            out.monitors.append(watch(x))
         log(f"{label}iter {it:3d}  mass {m[0]:.3e}  x-mom {m[1]:.3e}  y-mom {m[2]:.3e}  "
             f"update {update:.3e}{'  (new LU)' if fresh else ''}")
         worst = max(m)

@@ -1,4 +1,5 @@
-"""Files a case writes: residual history (CSV), fields (.vtu through meshio), metrics (JSON).
+"""Files a case writes: residual history and monitored metrics (CSV), fields (.vtu through
+meshio), metrics (JSON).
 
 Each file is written to a temporary name and renamed, so a reader never sees half a file.
 """
@@ -31,6 +32,19 @@ def write_history(path: Path, rows: list[tuple]) -> None:
         w.writerow(COLUMNS)
         for r in rows:
             w.writerow([r[0]] + [f"{v:.6e}" if isinstance(v, float) else v for v in r[1:5]] + [r[5], f"{r[6]:.4f}"])
+    _replace(tmp, path)
+
+
+def write_monitors(path: Path, history: list[tuple], rows: list[dict[str, float]]) -> None:
+    """One row per iteration of the final mesh: the iteration and each monitored metric (17
+    significant digits: an iterative-error estimate differences neighbouring rows)."""
+    tmp = path.with_name(path.name + ".part")
+    names = list(rows[0]) if rows else []
+    with open(tmp, "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh)
+        w.writerow(["iteration", *names])
+        for h, r in zip(history, rows):
+            w.writerow([h[0]] + [repr(r[k]) if math.isfinite(r[k]) else "" for k in names])
     _replace(tmp, path)
 
 

@@ -35,7 +35,7 @@ class Result:
         return EXIT_FOR[self.outcome.status]
 
 
-def _solve_one(cfg: CaseConfig, start, log, label, backend) -> tuple[Problem, Outcome]:
+def _solve_one(cfg: CaseConfig, start, log, label, backend, watched: bool = False) -> tuple[Problem, Outcome]:
     prob = build(cfg)
     d = discretise(prob.grid, prob.bounds, prob.nu, prob.source_u, prob.source_v, prob.pin_level)
     if start is None:
@@ -43,9 +43,11 @@ def _solve_one(cfg: CaseConfig, start, log, label, backend) -> tuple[Problem, Ou
     else:
         u0, v0, p0 = interpolate(start[0], start[1], prob.grid)
     x0 = np.concatenate([u0.ravel(), v0.ravel(), p0.ravel()])
+    lay = Layout(prob.grid.nx, prob.grid.ny)
+    watch = (lambda x: metrics.monitored(prob, *lay.split(x))) if watched else None
     out = newton(d, x0, tolerance=cfg.tolerance, max_iterations=cfg.max_iterations,
                  update_tolerance=cfg.update_tolerance, chord=cfg.chord, divergence_limit=cfg.divergence_limit,
-                 h_ref=prob.h_ref, log=log, label=label, backend=backend)
+                 h_ref=prob.h_ref, log=log, label=label, backend=backend, watch=watch)
     return prob, out
 
 
@@ -92,7 +94,7 @@ def solve(cfg: CaseConfig, log: Callable[[str], None] = print) -> Result:
                 sequence.append(_stage(ck, ok))
                 if ok.status in ("converged", "not_converged"):
                     start = (pk.grid, Layout(pk.grid.nx, pk.grid.ny).split(ok.x))
-        prob, out = _solve_one(c, start, log, label, backend)
+        prob, out = _solve_one(c, start, log, label, backend, watched=last)
         sequence.append(_stage(c, out))
         if out.status in ("diverged", "singular") and not last:
             log(f"{label}coarse start failed ({out.message}); starting the next mesh from the default field")
@@ -127,12 +129,15 @@ def solve(cfg: CaseConfig, log: Callable[[str], None] = print) -> Result:
 
 
 def write(result: Result, folder: Path) -> list[Path]:
-    """Write history, metrics and (when there is a usable field) the fields file."""
+    """Write history, monitors, metrics and (when there is a usable field) the fields file."""
     cfg = result.problem.config
     written = []
     h = folder / cfg.history
     output.write_history(h, result.outcome.history)
     written.append(h)
+    mon = folder / cfg.monitors
+    output.write_monitors(mon, result.outcome.history, result.outcome.monitors)
+    written.append(mon)
     if result.outcome.status in ("converged", "not_converged"):
         u, v, p = result.fields
         shear = metrics.wall_shear(result.problem, u, v)

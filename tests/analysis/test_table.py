@@ -268,3 +268,60 @@ def test_quantities_selection_from_the_study_and_its_errors():
     _Analysis.model_extra = {"quantities": ["drag", "lift"]}
     with pytest.raises(InputError, match=r"study.yaml: analysis.quantities\[1\]: is not a quantity of this study"):
         assess(_table(), None, study=_Study())
+
+
+def _newton_like_histories(t: pd.DataFrame) -> pd.DataFrame:
+    """A monitored drag per case that settles like a Newton solve: changes 1e-2, 1e-4, 1e-8, 1e-12."""
+    rows = []
+    for case in t["case"].unique():
+        point, lev = case.split("--m")
+        final = float(t.loc[(t["case"] == case) & (t["quantity"] == "drag"), "value"].iloc[0])
+        for it, off in enumerate([1e-2 + 1e-4 + 1e-8 + 1e-12, 1e-4 + 1e-8 + 1e-12, 1e-8 + 1e-12, 1e-12, 0.0]):
+            rows.append({"study": "s", "case": case, "point": point, "level": int(lev), "quantity": "drag_history",
+                         "iteration": it, "value": final + off})
+    return pd.DataFrame(rows)
+
+
+class _WindowAnalysis:
+    formal_order = 2.0
+    safety_factor = None
+    model_extra: dict = {}
+
+
+class _WindowStudy:
+    file = "study.yaml"
+    analysis = _WindowAnalysis()
+    quantities = {"drag": None, "cf": None, "drag_history": None}
+    iteration = None
+    mesh = None
+
+
+def test_iterative_window_from_the_study_sets_the_estimate():
+    # rule (iterative.monitor_error, our documented choice): half the range of the last N values.
+    # Hand computation: the last two values differ by 1e-12, so the estimate is 5e-13; with the
+    # default window (at least 5 values, here all five) it is half the whole range, 5.0501e-3.
+    t = _table()
+    hist = _newton_like_histories(t)
+    _WindowAnalysis.model_extra = {"monitors": {"drag": "drag_history"}, "iterative_window": 2}
+    two = assess(t, hist, study=_WindowStudy(), quantities=["drag"]).set_index("point")
+    assert two.loc["p1", "iterative_error"] == pytest.approx(5e-13, rel=1e-3)
+    assert bool(two.loc["p1", "iterative_ok"]) is True
+    _WindowAnalysis.model_extra = {"monitors": {"drag": "drag_history"}}
+    default = assess(t, hist, study=_WindowStudy(), quantities=["drag"]).set_index("point")
+    assert default.loc["p1", "iterative_error"] == pytest.approx(0.5 * (1e-2 + 1e-4 + 1e-8 + 1e-12), rel=1e-9)
+
+
+@pytest.mark.parametrize("key, value, words", [
+    ("iterative_window", 1, "2 or more"),
+    ("iterative_window", "two", "2 or more"),
+    ("coverage", "wide", "must be a number above 0"),
+    ("negligible", 2.0, "at most 1"),
+    ("weighted", "yes", "true or false"),
+    ("monitors", ["drag"], "must map result quantities"),
+])
+def test_bad_analysis_settings_name_file_key_and_value(key, value, words):
+    _WindowAnalysis.model_extra = {key: value}
+    with pytest.raises(InputError) as err:
+        assess(_table(), None, study=_WindowStudy())
+    text = str(err.value)
+    assert f"study.yaml: analysis.{key}" in text and repr(value) in text and words in text

@@ -50,6 +50,22 @@ def test_series_and_profile(read) -> None:
     np.testing.assert_array_equal(r.reading.values, [3.0e-3, 2.5e-3, 2.0e-3])
 
 
+def test_series_skips_iterations_with_no_recorded_value(read) -> None:
+    # a monitor written every other iteration, or with no value at the first iterate
+    text = "iteration,drag\n0,\n1,0.5\n2,\n3,0.25\n"
+    r = read({"from": "csv", "file": "m.csv", "column": "drag", "series": True, "iteration_column": "iteration"},
+             {"m.csv": text})
+    np.testing.assert_array_equal(r.reading.values, [0.5, 0.25])
+    np.testing.assert_array_equal(r.reading.coord, [1.0, 3.0])
+    r = read({"from": "csv", "file": "m.csv", "column": "drag", "series": True})  # counted rows keep their count
+    np.testing.assert_array_equal(r.reading.coord, [2.0, 4.0])
+    r = read({"from": "csv", "file": "e.csv", "column": "drag", "series": True}, {"e.csv": "iteration,drag\n0,\n"})
+    assert r.status == "failed" and "the history has no recorded values" in r.reason
+    # outside a history an empty cell is still an error
+    r = read({"from": "csv", "file": "m.csv", "column": "drag", "row": 0})
+    assert r.status == "failed" and "not a number (got '')" in r.reason
+
+
 def test_whitespace_table_with_fortran_exponents(read) -> None:
     # Fortran "D" exponents in solver output: common practice.
     r = read({"from": "csv", "file": "h.dat", "column": "momx", "series": True}, {"h.dat": SPACED})

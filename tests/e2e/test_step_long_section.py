@@ -69,3 +69,12 @@ def test_upper_reattachment_is_flagged_not_asymptotic(table: pd.DataFrame) -> No
     # scheme's formal order 2: a GCI from that order is not to be trusted, and the verdict says so
     row = table.loc["upper_reattachment"]
     assert row["order"] > 3 and row["verdict"] != "in the asymptotic range", row["verdict"]
+
+
+def test_iterative_error_is_negligible_beside_the_mesh_uncertainty(table: pd.DataFrame) -> None:
+    # the solver's monitors.csv gives each quantity at every Newton iterate; the study's
+    # iterative_window: 2 takes half the last change (common practice: iterative error should sit
+    # one to two orders below the discretization uncertainty, here under 1 % of U)
+    for quantity, row in table.iterrows():
+        assert bool(row["iterative_ok"]) is True, f"{quantity}: {row['iterative_error']} against U = {row['U']}"
+        assert 0 <= row["iterative_error"] < 0.01 * row["U"]

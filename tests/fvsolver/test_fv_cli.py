@@ -37,6 +37,12 @@ def test_plate_case_writes_fields_metrics_and_history(tmp_path):
     assert max(float(rows[-1][k]) for k in ("mass_imbalance", "xmom_imbalance", "ymom_imbalance")) <= 1e-10
     m = json.loads((tmp_path / "metrics.json").read_text(encoding="utf-8"))
     assert m["converged"] is True and m["cells"] == 32 * 16 and m["iterations"] == len(rows) - 1
+    # the drag at every iterate of the final mesh; the last row is the converged value itself
+    with open(tmp_path / "monitors.csv", encoding="utf-8") as fh:
+        mon = list(csv.DictReader(fh))
+    assert [r["iteration"] for r in mon] == [r["iteration"] for r in rows]
+    assert float(mon[-1]["drag.cd"]) == m["drag"]["cd"]
+    assert abs(float(mon[-1]["drag.cd"]) - float(mon[-2]["drag.cd"])) < 1e-8 * m["drag"]["cd"]
     assert m["wall_time_s"] > 0 and len(m["cf"]["x"]) == len(m["cf"]["values"]) > 5
     assert set(m["stations"]) >= {"x", "cf", "delta_star", "theta", "shape_factor"}
     mesh = meshio.read(tmp_path / "fields.vtu")

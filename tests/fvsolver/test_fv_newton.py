@@ -76,3 +76,14 @@ def test_divergence_stops_with_its_own_status():
 
 def test_history_columns():
     assert COLUMNS[:5] == ("iteration", "mass_imbalance", "xmom_imbalance", "ymom_imbalance", "newton_update")
+
+
+def test_monitored_metrics_are_the_metrics_and_missing_where_a_field_has_none():
+    from studyflow.fvsolver import metrics
+
+    r = solve_case({"case": {"kind": "step"}, "mesh": {"nx": 60, "ny": 16}})
+    got = metrics.monitored(r.problem, *r.fields)
+    assert got["reattachment_length"] == r.metrics["reattachment_length"] > 0
+    assert np.isnan(got["upper_separation"]) and np.isnan(r.metrics["upper_separation"])  # none at Re = 100
+    still = [np.zeros_like(f) for f in r.fields]  # no flow: no wall shear changes sign anywhere
+    assert all(np.isnan(v) for v in metrics.monitored(r.problem, *still).values())

@@ -3,7 +3,9 @@
 One value: a row by index (negative counts from the end, ``-1`` is the last and the default) or the
 row whose ``where`` column holds a given value. The whole column: a profile against
 ``coord_column``, or with ``series: true`` a history (iteration numbers from ``iteration_column``,
-else the row index). The first non-comment line is the header unless ``header: false``, when
+else the row's count from 1). In a history an empty cell means the quantity was not recorded at
+that iteration (a solver that monitors every few iterations, or an iterate with no value yet) and
+the row is left out; any other text that is not a number is an error. The first non-comment line is the header unless ``header: false``, when
 columns are addressed by position. The delimiter is guessed from the header line (comma, semicolon,
 tab, else runs of whitespace) unless given.
 """
@@ -112,12 +114,19 @@ def read_csv(path: Path, options: CsvOptions, root: Path | None = None) -> Readi
     where = f"column {options.column!r}"
 
     if options.series or options.coord_column is not None:
-        values = [_cell(n, f, col, options.column) for n, f in rows]
+        counted = list(enumerate(rows, start=1))
+        if options.series:
+            counted = [(k, (n, f)) for k, (n, f) in counted if not (col < len(f) and f[col].strip() == "")]
+            if not counted:
+                raise ReadFailure("the history has no recorded values", where, "")
+        values = [_cell(n, f, col, options.column) for _, (n, f) in counted]
         other_name = options.iteration_column if options.series else options.coord_column
         other = None
         if other_name is not None:
             oc = _index(header, other_name, width)
-            other = [_cell(n, f, oc, other_name) for n, f in rows]
+            other = [_cell(n, f, oc, other_name) for _, (n, f) in counted]
+        elif options.series:
+            other = [float(k) for k, _ in counted]
         if options.series:
             return Reading.history(values, other, where)
         return Reading.profile(other, values, where)
