@@ -5,12 +5,19 @@ untouched. Refused: absolute names, ``..`` components, device files, FIFOs, hard
 symbolic links whose target leaves the target folder, members that would be written through
 a link, and duplicate names (a later member would silently replace an earlier one). The
 extraction itself then runs with the standard library's ``data`` filter as a second guard.
+
+An archive whose files add up to more than the free space where it would be unpacked is refused
+before anything is written (a small, highly compressed archive can hold a disk's worth of data):
+the sizes are those the archive declares for each file, which are also the most extraction
+writes for it.
 """
 
 from __future__ import annotations
 
+import errno
 import os
 import posixpath
+import shutil
 import tarfile
 import zlib
 from dataclasses import dataclass
@@ -107,6 +114,18 @@ def check_members(members: list[tarfile.TarInfo]) -> list[Refusal]:
     return refusals
 
 
+def _check_room(archive: Path, members: list[tarfile.TarInfo], target: Path) -> None:
+    """Refuse (as the machine's refusal, ENOSPC) an archive that would not fit where it goes."""
+    need = sum(m.size for m in members if m.isreg())
+    probe = target
+    while not probe.exists():  # the nearest folder that exists holds the file system's figure
+        probe = probe.parent
+    free = shutil.disk_usage(probe).free
+    if need > free:
+        raise OSError(errno.ENOSPC, f"{archive}: its files need {need:,} bytes, only {free:,} are free there; "
+                      "nothing was written", str(target))
+
+
 def _prepare_target(target: Path) -> Path:
     if target.is_symlink():
         raise UnsafePathError(f"unpack target {str(target)!r} is a symbolic link; give a real folder")
@@ -142,6 +161,7 @@ def safe_extract(archive: str | os.PathLike, target: str | os.PathLike) -> list[
             lines = "\n".join(f"  - {r}" for r in refusals)
             raise UnsafePathError(f"{archive}: refused to unpack; nothing was written:\n{lines}")
         _prepare_target(target)
+        _check_room(archive, members, target)
         target.mkdir(parents=True, exist_ok=True)
         names: list[str] = []
         for m in members:

@@ -148,3 +148,28 @@ def test_not_a_bundle_and_damaged_archive_are_clear_errors(tmp_path: Path) -> No
     with pytest.raises(AuditError, match="damaged.tar.gz"):
         audit(damaged, into=tmp_path / "t2")
     assert not (tmp_path / "t2").exists()
+
+
+def test_archive_larger_than_the_free_space_is_refused_before_writing(tmp_path: Path, monkeypatch, capsys) -> None:
+    # a decompression bomb is the extreme case: declared sizes are summed and set against the
+    # free space of the file system that would receive them (common practice for safe extraction)
+    import errno
+    from collections import namedtuple
+
+    from studyflow.bundle import unpack
+    from studyflow.cli import main
+    from studyflow.errors import EXIT_SYSTEM
+
+    archive = _archive(tmp_path / "big.tar.gz", [_file("b/MANIFEST.json", b"{}"), _file("b/zeros.bin", bytes(5000))])
+    usage = namedtuple("usage", "total used free")
+    monkeypatch.setattr(unpack.shutil, "disk_usage", lambda p: usage(10_000, 9_000, 1_000))
+    with pytest.raises(OSError) as err:
+        safe_extract(archive, tmp_path / "t" / "deeper")
+    assert err.value.errno == errno.ENOSPC
+    assert "5,002 bytes" in err.value.strerror and "1,000 are free" in err.value.strerror
+    assert str(archive) in err.value.strerror and err.value.filename == str(tmp_path / "t" / "deeper")
+    assert not (tmp_path / "t").exists()
+    assert main(["audit", str(archive), "--into", str(tmp_path / "review")]) == EXIT_SYSTEM
+    assert "nothing was written" in capsys.readouterr().err and not (tmp_path / "review").exists()
+    monkeypatch.undo()
+    assert safe_extract(archive, tmp_path / "t") == ["b/MANIFEST.json", "b/zeros.bin"]
