@@ -237,7 +237,9 @@ class _Builder:
         arrays = fieldpics.choose_arrays(work["mesh"])
         if not arrays:
             work["notes"].append(f"{path.name} of {state.case} holds a mesh but no field arrays: no field pictures.")
-        work["jobs"] = [fieldpics.PictureJob(path, name, assoc, self.figdir / f"field-{slug(name)}.png", name)
+        view = self.data.settings.view
+        work["jobs"] = [fieldpics.PictureJob(path, name, assoc, self.figdir / f"field-{slug(name)}.png",
+                                             name if view is None else f"{name}: {fieldpics.window_note(view)}", view)
                         for name, assoc in arrays]
         self.figdir.mkdir(parents=True, exist_ok=True)
         if work["jobs"]:
@@ -252,7 +254,8 @@ class _Builder:
         status = work["pending"].result() if "pending" in work else {}
         for job in work.get("jobs", []):
             title = f"{job.array} on {state.case}"
-            caption = f"{job.association} data '{job.array}' from {path.name}."
+            caption = f"{job.association} data '{job.array}' from {path.name}" + (
+                f", in the window {fieldpics.window_note(job.window)} (report.view)." if job.window else ".")
             name = job.png.stem
             if status.get(job.png) == "ok":
                 svg = job.png.with_suffix(".svg")
@@ -264,7 +267,7 @@ class _Builder:
                 why = status.get(job.png, "not attempted")
                 note = f"The pyvista picture could not be drawn ({why}); shown with matplotlib instead."
                 try:
-                    fig = fieldpics.fallback_picture(work["mesh"], job.array, job.association, title)
+                    fig = fieldpics.fallback_picture(work["mesh"], job.array, job.association, title, job.window)
                     out.append(self.save(fig, name, title, caption, "fields", note))
                 except Exception as exc:  # a field we cannot draw must not cost the report
                     notes.append(f"{title}: could not be drawn ({why}); the fallback failed too: {exc}")

@@ -5,7 +5,9 @@ missing OpenGL library or a crash inside VTK then ends this process only, and th
 to a matplotlib picture of the same field. It imports nothing from studyflow so that it starts fast
 and cannot be broken by the rest of the package.
 
-job.json: {"size": [w, h], "items": [{"file", "array", "association", "png", "title"}, ...]}
+job.json: {"size": [w, h], "items": [{"file", "array", "association", "png", "title"[, "window",
+"stretch"]}, ...]}; with a window [x0, x1, y0, y1] only the cells whose centres lie in it are
+drawn, with y scaled by "stretch".
 It prints one JSON line: {"<png>": "ok" | "<error text>", ...}.
 """
 
@@ -30,6 +32,17 @@ def _load(path: str):
     return pv.read(path)
 
 
+def _inside(mesh, window):
+    import numpy as np
+
+    x0, x1, y0, y1 = window
+    c = mesh.cell_centers().points
+    keep = np.nonzero((c[:, 0] >= x0) & (c[:, 0] <= x1) & (c[:, 1] >= y0) & (c[:, 1] <= y1))[0]
+    if keep.size == 0:
+        raise ValueError(f"no cell of the mesh lies in the window x [{x0}, {x1}], y [{y0}, {y1}]")
+    return mesh.extract_cells(keep)
+
+
 def main(argv: list[str]) -> int:
     os.environ.setdefault("VTK_DEFAULT_OPENGL_WINDOW", "vtkEGLRenderWindow")
     with open(argv[1], encoding="utf-8") as fh:
@@ -44,17 +57,24 @@ def main(argv: list[str]) -> int:
         try:
             mesh = cache.get(item["file"]) or _load(item["file"])
             cache[item["file"]] = mesh
+            if item.get("window"):
+                mesh = _inside(mesh, item["window"])
             plotter = pv.Plotter(off_screen=True, window_size=size)
             plotter.set_background("#fbfaf6")
             plotter.add_mesh(mesh, scalars=item["array"], preference=item.get("association", "point"),
-                             cmap="cividis", show_edges=mesh.n_cells <= 5000, edge_color="#d9d3c4",
-                             line_width=0.5,
-                             scalar_bar_args={"title": item.get("title", item["array"]), "color": "#1d2a35",
+                             # a window's cells are drawn stretched and dense: the mesh family shows them
+                             cmap="cividis", show_edges=mesh.n_cells <= 5000 and not item.get("window"),
+                             edge_color="#d9d3c4", line_width=0.5,
+                             scalar_bar_args={"title": item["array"], "color": "#1d2a35",
                                               "vertical": True, "position_x": 0.86, "position_y": 0.1,
                                               "height": 0.8, "width": 0.06})
             plotter.add_text(item.get("title", item["array"]), position="upper_left", font_size=10,
                              color="#1d2a35")
             bounds = mesh.bounds
+            stretch = float(item.get("stretch", 1.0))
+            if stretch != 1.0:
+                plotter.set_scale(yscale=stretch)
+                bounds = (bounds[0], bounds[1], bounds[2] * stretch, bounds[3] * stretch, bounds[4], bounds[5])
             if abs(bounds[5] - bounds[4]) <= 1e-12 * max(1.0, abs(bounds[1] - bounds[0])):
                 plotter.view_xy()
             else:

@@ -8,6 +8,7 @@ the same field is drawn instead and the report says why.
 from __future__ import annotations
 
 import json
+import math
 import os
 import subprocess
 import sys
@@ -39,6 +40,25 @@ class PictureJob:
     association: str  # point | cell
     png: Path
     title: str
+    window: tuple[float, float, float, float] | None = None  # x0, x1, y0, y1 (report.view)
+
+
+def stretch_for(window: tuple[float, float, float, float], frame: float = 900 / 520) -> float:
+    """The y stretch that lets a window much wider than tall fill a picture of aspect ``frame``:
+    1 unless the window is more than twice as wide (relative to the frame), else the nearest of
+    2, 5, 10, 20, 50, ... at or below the ratio."""
+    x0, x1, y0, y1 = window
+    ratio = (x1 - x0) / (y1 - y0) / frame
+    if ratio < 2.0:
+        return 1.0
+    decade = 10.0 ** math.floor(math.log10(ratio))
+    return max(m * decade for m in (1.0, 2.0, 5.0) if m * decade <= ratio)
+
+
+def window_note(window: tuple[float, float, float, float]) -> str:
+    x0, x1, y0, y1 = window
+    k = stretch_for(window)
+    return f"x in [{x0:g}, {x1:g}], y in [{y0:g}, {y1:g}]" + (f", y stretched by {k:g}" if k > 1 else "")
 
 
 def find_field_file(folder: Path, declared: tuple[str, ...], suffixes: tuple[str, ...] = FIELD_SUFFIXES) -> Path | None:
@@ -109,7 +129,9 @@ class PendingPictures:
         job_file.write_text(json.dumps({
             "size": [900, 520],
             "items": [{"file": str(j.file), "array": j.array, "association": j.association,
-                       "png": str(j.png), "title": j.title} for j in jobs],
+                       "png": str(j.png), "title": j.title,
+                       **({"window": list(j.window), "stretch": stretch_for(j.window)} if j.window else {})}
+                      for j in jobs],
         }), encoding="utf-8")
         command = (argv or [sys.executable, str(Path(__file__).with_name("fieldrender.py"))]) + [str(job_file)]
         env = dict(os.environ)
@@ -204,14 +226,19 @@ def _values(mesh, array: str, association: str) -> np.ndarray:
     return np.linalg.norm(v, axis=1) if v.ndim > 1 and v.shape[1] > 1 else v.reshape(len(v))
 
 
-def fallback_picture(mesh, array: str, association: str, title: str) -> Figure:
-    """The same field drawn with matplotlib (tripcolor over the surface cells split into triangles)."""
+def fallback_picture(mesh, array: str, association: str, title: str,
+                     window: tuple[float, float, float, float] | None = None) -> Figure:
+    """The same field drawn with matplotlib (tripcolor over the surface cells split into triangles),
+    limited to ``window`` (x0, x1, y0, y1) with y stretched as ``stretch_for`` says, if given."""
     fig, (ax,) = new_figure(1, ncols=1, panel_size=(6.0, 3.6))
     pts, polys, _ = _surface(mesh)
-    ax.set_title(title, loc="left")
+    ax.set_title(title if window is None else f"{title} ({window_note(window)})", loc="left")
     ax.set_xlabel("x")
     ax.set_ylabel("y")
-    ax.set_aspect("equal")
+    ax.set_aspect("equal" if window is None else stretch_for(window))
+    if window is not None:
+        ax.set_xlim(window[0], window[1])
+        ax.set_ylim(window[2], window[3])
     ax.grid(False)
     if not polys:
         ax.text(0.5, 0.5, "no surface cells to draw", transform=ax.transAxes, ha="center")

@@ -15,11 +15,17 @@ report:
       point: Re1e4             # optional: draw it for this point only
     drag: {value: 0.013513, label: Blasius with leading-edge correction}   # or one reference value
   points: 12                   # optional: at most this many points drawn per convergence figure
+  view: {x: [-0.05, 1.1], y: [0.0, 0.12]}   # optional: field pictures show this window only
 ```
+
+``view`` suits fields whose interest lies in a thin region (a boundary layer in a large domain):
+the pictures show the cells whose centres lie in the window, and a window much wider than tall
+is drawn with y stretched by a stated factor.
 """
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -67,6 +73,7 @@ class ReportSettings:
     # quantities that are not results to assess: histories, residuals, the cell count behind h
     not_results: tuple[str, ...] = ()
     assessed: tuple[str, ...] | None = None  # analysis.quantities when the study names them
+    view: tuple[float, float, float, float] | None = None  # x0, x1, y0, y1 of the field pictures
 
 
 FIELD_SUFFIXES = (".vtu", ".vtk", ".vtp", ".vts", ".vtr", ".xdmf", ".xmf")
@@ -132,9 +139,11 @@ def load_settings(root: Path) -> ReportSettings:
     if not isinstance(max_points, int) or isinstance(max_points, bool) or max_points < 1:
         problems.append(Problem(str(path), "report.points", max_points, "must be a whole number >= 1"))
         max_points = 12
-    unknown = sorted(set(report) - {"references", "points"})
+    view = _view(path, report.get("view"), problems)
+    unknown = sorted(set(report) - {"references", "points", "view"})
     for key in unknown:
-        problems.append(Problem(str(path), f"report.{key}", report[key], "unknown key (allowed: references, points)"))
+        problems.append(Problem(str(path), f"report.{key}", report[key],
+                                "unknown key (allowed: references, points, view)"))
     if problems:
         raise InputError(problems, headline=f"{path}: the report block is invalid")
     return ReportSettings(
@@ -155,7 +164,27 @@ def load_settings(root: Path) -> ReportSettings:
         max_points=max_points,
         not_results=tuple(dict.fromkeys(not_results)),
         assessed=assessed,
+        view=view,
     )
+
+
+def _view(path: Path, block: Any, problems: list[Problem]) -> tuple[float, float, float, float] | None:
+    if block is None:
+        return None
+    if not isinstance(block, dict) or set(block) != {"x", "y"}:
+        problems.append(Problem(str(path), "report.view", block, "must be {x: [low, high], y: [low, high]}"))
+        return None
+    out: list[float] = []
+    for axis in ("x", "y"):
+        pair = block[axis]
+        ok = (isinstance(pair, list) and len(pair) == 2
+              and all(isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v) for v in pair)
+              and pair[0] < pair[1])
+        if not ok:
+            problems.append(Problem(str(path), f"report.view.{axis}", pair, "must be two numbers, low < high"))
+            return None
+        out += [float(pair[0]), float(pair[1])]
+    return out[0], out[1], out[2], out[3]
 
 
 def _references(root: Path, path: Path, block: Any, problems: list[Problem]) -> dict[str, Reference]:

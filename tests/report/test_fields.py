@@ -45,6 +45,30 @@ def test_fallback_picture_shows_the_field_values(tmp_path):
         assert fig.axes[0].get_xlabel() == "x" and fig.axes[1].get_ylabel() == name  # colour bar names the field
 
 
+def test_window_limits_the_fallback_picture_and_stretches_y(tmp_path):
+    from studyflow.report.fields import stretch_for
+
+    write_vtu(tmp_path / "f.vtu", 6, 3)
+    mesh = meshio.read(tmp_path / "f.vtu")
+    window = (0.0, 0.9, 0.0, 0.05)  # 18 times wider than tall: y drawn 10 times stretched
+    assert stretch_for(window) == 10.0 and stretch_for((0.0, 1.0, 0.0, 1.0)) == 1.0
+    ax = fallback_picture(mesh, "u", "point", "u", window).axes[0]
+    assert ax.get_xlim() == (0.0, 0.9) and ax.get_ylim() == (0.0, 0.05)
+    assert ax.get_aspect() == 10.0 and "y stretched by 10" in ax.get_title(loc="left")
+
+
+def test_pyvista_draws_only_the_window(tmp_path):
+    pytest.importorskip("pyvista")
+    write_vtu(tmp_path / "f.vtu", 8, 4)
+    inside = PictureJob(tmp_path / "f.vtu", "u", "point", tmp_path / "u.png", "u", (0.0, 0.5, 0.0, 0.2))
+    empty = PictureJob(tmp_path / "f.vtu", "u", "point", tmp_path / "e.png", "u", (50.0, 60.0, 50.0, 60.0))
+    status = render_pictures([inside, empty])
+    if status[inside.png] != "ok" and "no cell" not in status[inside.png]:
+        pytest.skip(f"no off-screen OpenGL on this machine: {status[inside.png]}")
+    assert status[inside.png] == "ok" and inside.png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert "no cell of the mesh lies in the window" in status[empty.png]
+
+
 def test_pyvista_renders_off_screen(tmp_path):
     pytest.importorskip("pyvista")
     write_vtu(tmp_path / "f.vtu", 8, 4)
