@@ -113,6 +113,20 @@ def test_mumps_shim_builds_once_into_an_empty_cache(tmp_path, monkeypatch):
     assert not [p for p in built.parent.iterdir() if p.name.startswith(".build-")]  # no half-built files left
 
 
+def test_shim_name_follows_the_mumps_headers(tmp_path, monkeypatch):
+    # the headers fix the layout of MUMPS's control structure: new headers, a new shim
+    inc = tmp_path / "inc"
+    inc.mkdir()
+    (inc / "dmumps_c.h").write_text("/* layout 1 */\n")
+    monkeypatch.setenv("STUDYFLOW_FV_MUMPS_FLAGS", f"-I{inc} -ldmumps_seq")
+    first = mumps.library_path()
+    assert mumps._headers()[0] == inc / "dmumps_c.h"
+    (inc / "dmumps_c.h").write_text("/* layout 2 */\n")
+    assert mumps.library_path() != first
+    (inc / "dmumps_c.h").write_text("/* layout 1 */\n")
+    assert mumps.library_path() == first
+
+
 def test_machine_with_mumps_installed_can_use_it():
     # scripts/setup installs Debian's libmumps-seq-dev; where it is present the backend must work,
     # so a broken shim cannot hide behind the SuperLU fallback

@@ -7,8 +7,8 @@ than SuperLU's supernodal left-looking LU (measured on the 256 x 128 plate's 98,
 
 The shim (``mumps_shim.c``) is compiled on first use with the system's C compiler against the
 system's sequential MUMPS (Debian and Ubuntu: ``apt-get install libmumps-seq-dev``) and kept in
-a per-user cache, named by a digest of its source and flags, so it is rebuilt only when either
-changes. ``STUDYFLOW_FV_MUMPS_FLAGS`` replaces the default compile and link flags for a MUMPS
+a per-user cache, named by a digest of its source, flags and the MUMPS headers it was compiled
+against, so it is rebuilt when any of them changes. ``STUDYFLOW_FV_MUMPS_FLAGS`` replaces the default compile and link flags for a MUMPS
 installed elsewhere (for example ``-I/opt/mumps/include -L/opt/mumps/lib -ldmumps_seq ...``);
 ``STUDYFLOW_FV_CACHE`` moves the cache; ``CC`` picks the compiler.
 
@@ -39,6 +39,7 @@ from ..errors import BackendUnavailable, LinearSolverError, SingularJacobian
 NAME = "mumps"
 SHIM = Path(__file__).with_name("mumps_shim.c")
 DEFAULT_FLAGS = "-ldmumps_seq -lmumps_common_seq -lmpiseq_seq"
+HEADERS = ("dmumps_c.h", "mumps_c_types.h", "mumps_int_def.h")
 ORDERING = 2  # ICNTL(7): approximate minimum fill
 WORKSPACE_MARGIN = 40  # ICNTL(14), per cent
 MAX_MARGIN = 640
@@ -63,10 +64,26 @@ def _flags() -> list[str]:
     return shlex.split(os.environ.get("STUDYFLOW_FV_MUMPS_FLAGS", DEFAULT_FLAGS))
 
 
+def _headers() -> list[Path]:
+    """MUMPS's C headers as the compiler would find them (the -I folders of the flags first)."""
+    dirs = [Path(f[2:]) for f in _flags() if f.startswith("-I") and len(f) > 2]
+    dirs += [Path("/usr/local/include"), Path("/usr/include")]
+    found = []
+    for name in HEADERS:
+        hit = next((d / name for d in dirs if (d / name).is_file()), None)
+        if hit is not None:
+            found.append(hit)
+    return found
+
+
 def library_path() -> Path:
-    """Where the compiled shim for the current source and flags lives (it may not exist yet)."""
+    """Where the compiled shim for the current source, flags and MUMPS headers lives (it may not
+    exist yet). The headers fix the layout of MUMPS's control structure: a MUMPS upgrade that
+    changes them gets a new shim rather than one built for another layout."""
     h = hashlib.sha256(SHIM.read_bytes())
     h.update("\0".join([os.environ.get("CC", "cc"), *_flags(), sys.platform]).encode())
+    for header in _headers():
+        h.update(header.read_bytes())
     return cache_dir() / f"mumps_shim-{h.hexdigest()[:12]}.so"
 
 
