@@ -53,10 +53,14 @@ def main(argv: list[str] | None = None) -> int:
     folder = Path(args.case).resolve().parent
     write(result, folder)
     o = result.outcome
-    tail = f"{o.status}: {o.iterations} iterations, {result.metrics['factorisations']} LU, {result.wall_time:.2f} s"
+    solver = result.metrics["solver"]
+    tail = (f"{o.status}: {o.iterations} iterations, {result.metrics['factorisations']} LU by "
+            f"{solver['linear_solver']}, {result.wall_time:.2f} s")
     if o.message:
         tail += f" ({o.message})"
     print(tail, flush=True)
+    if solver.get("linear_solver_note"):
+        print(f"note: {solver['linear_solver_note']}", flush=True)
     if result.exit_code:
         print(f"studyflow-fv: {o.status}: {o.message}", file=sys.stderr)
     return result.exit_code

@@ -31,6 +31,8 @@ def test_plate_case_writes_fields_metrics_and_history(tmp_path):
     # every iteration printed, with the imbalance columns
     lines = [ln for ln in p.stdout.splitlines() if "iter" in ln and "mass" in ln]
     assert len(lines) >= 3
+    m_backend = json.loads((tmp_path / "metrics.json").read_text(encoding="utf-8"))["solver"]["linear_solver"]
+    assert p.stdout.splitlines()[-1].startswith("converged: ") and f" LU by {m_backend}, " in p.stdout
     with open(tmp_path / "history.csv", encoding="utf-8") as fh:
         rows = list(csv.DictReader(fh))
     assert set(rows[0]) >= {"iteration", "mass_imbalance", "xmom_imbalance", "ymom_imbalance", "newton_update"}
