@@ -28,6 +28,7 @@ from .figures.common import new_figure
 from .settings import FIELD_SUFFIXES, MESH_SUFFIXES
 
 MAX_ARRAYS = 4
+FRAME = (900, 520)  # pixels of an off-screen field picture
 MAX_DRAWN_CELLS = 60_000  # above this, the mesh drawing shows the outline only
 SURFACE_TYPES = {"triangle": 3, "quad": 4, "triangle6": 3, "quad8": 4, "quad9": 4}
 SKIP_ARRAYS = {"vtkOriginalPointIds", "vtkOriginalCellIds", "gmsh:physical", "gmsh:geometrical", "cell_tags"}
@@ -43,7 +44,7 @@ class PictureJob:
     window: tuple[float, float, float, float] | None = None  # x0, x1, y0, y1 (report.view)
 
 
-def stretch_for(window: tuple[float, float, float, float], frame: float = 900 / 520) -> float:
+def stretch_for(window: tuple[float, float, float, float], frame: float = FRAME[0] / FRAME[1]) -> float:
     """The y stretch that lets a window much wider than tall fill a picture of aspect ``frame``:
     1 unless the window is more than twice as wide (relative to the frame), else the nearest of
     2, 5, 10, 20, 50, ... at or below the ratio."""
@@ -127,7 +128,7 @@ class PendingPictures:
         self.tmp = tempfile.TemporaryDirectory(prefix="studyflow-render-")
         job_file = Path(self.tmp.name) / "job.json"
         job_file.write_text(json.dumps({
-            "size": [900, 520],
+            "size": list(FRAME),
             "items": [{"file": str(j.file), "array": j.array, "association": j.association,
                        "png": str(j.png), "title": j.title,
                        **({"window": list(j.window), "stretch": stretch_for(j.window)} if j.window else {})}

@@ -5,9 +5,9 @@ row whose ``where`` column holds a given value. The whole column: a profile agai
 ``coord_column``, or with ``series: true`` a history (iteration numbers from ``iteration_column``,
 else the row's count from 1). In a history an empty cell means the quantity was not recorded at
 that iteration (a solver that monitors every few iterations, or an iterate with no value yet) and
-the row is left out; any other text that is not a number is an error. The first non-comment line is the header unless ``header: false``, when
-columns are addressed by position. The delimiter is guessed from the header line (comma, semicolon,
-tab, else runs of whitespace) unless given.
+the row is left out; any other text that is not a number is an error. The first non-comment line
+is the header unless ``header: false``, when columns are addressed by position. The delimiter is
+guessed from the header line (comma, semicolon, tab, else runs of whitespace) unless given.
 """
 
 from __future__ import annotations

@@ -8,8 +8,8 @@ than SuperLU's supernodal left-looking LU (measured on the 256 x 128 plate's 98,
 The shim (``mumps_shim.c``) is compiled on first use with the system's C compiler against the
 system's sequential MUMPS (Debian and Ubuntu: ``apt-get install libmumps-seq-dev``) and kept in
 a per-user cache, named by a digest of its source, flags and the MUMPS headers it was compiled
-against, so it is rebuilt when any of them changes. ``STUDYFLOW_FV_MUMPS_FLAGS`` replaces the default compile and link flags for a MUMPS
-installed elsewhere (for example ``-I/opt/mumps/include -L/opt/mumps/lib -ldmumps_seq ...``);
+against, so it is rebuilt when any of them changes. ``STUDYFLOW_FV_MUMPS_FLAGS`` replaces the
+default compile and link flags for a MUMPS installed elsewhere (for example ``-I/opt/mumps/include -L/opt/mumps/lib -ldmumps_seq ...``);
 ``STUDYFLOW_FV_CACHE`` moves the cache; ``CC`` picks the compiler.
 
 Settings (MUMPS's ICNTL numbers): ordering ICNTL(7) = 2, approximate minimum fill (measured on
@@ -44,9 +44,10 @@ ORDERING = 2  # ICNTL(7): approximate minimum fill
 WORKSPACE_MARGIN = 40  # ICNTL(14), per cent
 MAX_MARGIN = 640
 
-# INFOG(1) values (MUMPS users' guide, "Error diagnostics"): -10 numerically singular, -6
-# structurally singular; these mean the working space estimate was too small.
+# INFOG(1) values (MUMPS users' guide, "Error diagnostics"): the matrix is singular
+# (-10 numerically, -6 structurally) ...
 _SINGULAR = {-6, -10}
+# ... or the working space MUMPS estimated at analysis ran out (retried with a larger margin)
 _WORKSPACE = {-8, -9, -14, -15, -17, -20}
 
 _P = ctypes.c_void_p
@@ -58,6 +59,10 @@ def cache_dir() -> Path:
         return Path(base)
     xdg = os.environ.get("XDG_CACHE_HOME")
     return (Path(xdg) if xdg else Path.home() / ".cache") / "studyflow-fv"
+
+
+def _cc() -> str:
+    return os.environ.get("CC", "cc")
 
 
 def _flags() -> list[str]:
@@ -81,7 +86,7 @@ def library_path() -> Path:
     exist yet). The headers fix the layout of MUMPS's control structure: a MUMPS upgrade that
     changes them gets a new shim rather than one built for another layout."""
     h = hashlib.sha256(SHIM.read_bytes())
-    h.update("\0".join([os.environ.get("CC", "cc"), *_flags(), sys.platform]).encode())
+    h.update("\0".join([_cc(), *_flags(), sys.platform]).encode())
     for header in _headers():
         h.update(header.read_bytes())
     return cache_dir() / f"mumps_shim-{h.hexdigest()[:12]}.so"
@@ -96,7 +101,7 @@ def build() -> Path:
         target.parent.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise BackendUnavailable(f"cannot create the cache folder {target.parent}: {exc.strerror}") from exc
-    cc = os.environ.get("CC", "cc")
+    cc = _cc()
     # concurrent first runs (several cases at once) each compile to their own file; the last
     # rename wins and every one of them is a complete library
     fd, tmp = tempfile.mkstemp(prefix=".build-", suffix=".so", dir=target.parent)
@@ -182,8 +187,7 @@ class Factoriser:
         self._lib.sf_set(self._handle, 7, ORDERING)
         self._lib.sf_set(self._handle, 24, 1)
         self._margin = WORKSPACE_MARGIN
-        self._pattern: tuple[np.ndarray, np.ndarray] | None = None
-        self._n = 0
+        self._pattern: tuple[np.ndarray, np.ndarray] | None = None  # indptr, indices of the analysed matrix
         # MUMPS keeps pointers to these arrays between calls: they live as long as the instance
         self._irn = self._jcn = self._a = None
         self.analyses = 0
@@ -191,12 +195,12 @@ class Factoriser:
     def factor(self, jacobian: sp.spmatrix) -> None:
         a = sp.csr_matrix(jacobian)
         a.sum_duplicates()
-        same = (self._pattern is not None and a.shape[0] == self._n
-                and np.array_equal(a.indptr, self._pattern[0]) and np.array_equal(a.indices, self._pattern[1]))
+        # equal indptr arrays also mean an equal order n
+        same = (self._pattern is not None and np.array_equal(a.indptr, self._pattern[0])
+                and np.array_equal(a.indices, self._pattern[1]))
         self._a = np.ascontiguousarray(a.data, dtype=np.float64)
         if not same:
             n = a.shape[0]
-            self._n = n
             self._pattern = (a.indptr.copy(), a.indices.copy())
             self._irn = (np.repeat(np.arange(n, dtype=np.intc), np.diff(a.indptr)) + 1).astype(np.intc)
             self._jcn = (a.indices + 1).astype(np.intc)
